@@ -1,0 +1,31 @@
+"""Atomic file writes: a reader sees the old file or the new one, never half of one."""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from pathlib import Path
+
+
+def write_atomic(path, data: str | bytes) -> Path:
+    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    mode = "wb" if isinstance(data, bytes) else "w"
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as handle:
+            handle.write(data)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def write_json_atomic(path, obj) -> Path:
+    """Write ``obj`` as indented JSON (keys in insertion order) atomically."""
+    return write_atomic(path, json.dumps(obj, indent=2, allow_nan=False) + "\n")
