@@ -31,7 +31,7 @@ from itertools import product
 import numpy as np
 
 from .noise import check_error, depolarize
-from .rotations import IDENTITY, rotate
+from .rotations import IDENTITY, SOURCES, rotate
 from .states import X_BIT, Z_BIT, label_from_bits
 
 
@@ -74,6 +74,11 @@ class StepCircuit:
         with ``s = two_qubit**2`` (both nodes' gates perfect).
         """
         return _compile(self)
+
+    @cached_property
+    def plan(self):
+        """Per term of :attr:`terms`, the fastest exact way to evaluate it (see ``_plan``)."""
+        return _plan(self.terms, self.n_pairs)
 
 
 def _joint_bits(n_pairs):
@@ -133,6 +138,50 @@ def _compile(circuit: StepCircuit) -> np.ndarray:
     return np.stack([m.T @ readout for m in polys])
 
 
+def _joint_weights(columns, n):
+    """Joint weights of all inputs, shape (4**n_pairs, N), pair 0 most significant."""
+    joint = columns[0]
+    for c in columns[1:]:
+        joint = (joint[:, None, :] * c[None, :, :]).reshape(-1, n)
+    return joint
+
+
+def _sum_products(columns, groups, n):
+    """Grouped sums of input products for a term that sends each joint label to one outcome.
+
+    ``groups[o][m]`` lists the joint labels (as per-pair label tuples) that end as
+    kept label ``o`` with parity pattern ``m``; summing their products directly
+    avoids forming all 4**n_pairs joint weights.
+    """
+    out = np.zeros((4, len(groups[0]), n))
+    for o, per_pattern in enumerate(groups):
+        for m, labels in enumerate(per_pattern):
+            for label in labels:
+                product_ = columns[0][label[0]]
+                for c, k in zip(columns[1:], label[1:]):
+                    product_ = product_ * c[k]
+                out[o, m] += product_
+    return out
+
+
+def _plan(terms: np.ndarray, n_pairs: int):
+    """How to evaluate each term fastest: constant, one-hot (a relabelling), or dense."""
+    plan = []
+    labels = list(product(range(4), repeat=n_pairs))
+    n_patterns = terms.shape[2] // 4
+    for term in terms:
+        if np.allclose(term, term[0]):
+            plan.append(("constant", term[0].reshape(4, n_patterns)))
+        elif np.all((term == 0) | (term == 1)) and np.all(term.sum(axis=1) == 1):
+            groups = [[[] for _ in range(n_patterns)] for _ in range(4)]
+            for j, col in enumerate(term.argmax(axis=1)):
+                groups[col // n_patterns][col % n_patterns].append(labels[j])
+            plan.append(("one_hot", groups))
+        else:
+            plan.append(("dense", term.T))
+    return tuple(plan)
+
+
 TWO_TO_ONE = StepCircuit("two_to_one", 2, cnots=((0, 1),), checks=((1, "Z"),))
 DOUBLE_SELECTION = StepCircuit("double_selection", 3, cnots=((0, 1), (2, 1)), checks=((1, "Z"), (2, "X")))
 
@@ -151,6 +200,33 @@ def prepare(pair, rotation, single_qubit) -> np.ndarray:
     return depolarize(rotated, survival)
 
 
+def _prepare_columns(pair, rotation, single_qubit, n):
+    """As :func:`prepare`, on the transposed layout: returns shape (4, n).
+
+    Working on four contiguous columns of length N (rather than N rows of 4)
+    keeps every elementwise product a long vector operation.
+    """
+    columns = np.asarray(pair, dtype=float).reshape(-1, 4).T
+    r = np.asarray(rotation, dtype=np.intp)
+    if r.ndim == 0:
+        rotated = columns[SOURCES[r]]
+        if r == IDENTITY:
+            return np.broadcast_to(rotated, (4, n))
+    else:
+        index = np.broadcast_to(SOURCES[r].T, (4, n))
+        rotated = np.take_along_axis(np.broadcast_to(columns, (4, n)), index, axis=0)
+    survival = np.where(r == IDENTITY, 1.0, np.asarray(single_qubit, dtype=float)) ** 2
+    return survival * rotated + (1.0 - survival) * 0.25
+
+
+def _batch_size(inputs, *parameters) -> int:
+    shapes = [np.shape(p)[:-1] for p in inputs] + [np.shape(p) for p in parameters]
+    shape = np.broadcast_shapes(*shapes)
+    if len(shape) > 1:
+        raise ValueError(f"a step takes batches of shape (N, 4); got leading shape {shape}")
+    return shape[0] if shape else 1
+
+
 def run_step(circuit: StepCircuit, inputs, rotations, *, two_qubit, single_qubit, measurement):
     """Evaluate a compiled step on a batch.
 
@@ -158,9 +234,13 @@ def run_step(circuit: StepCircuit, inputs, rotations, *, two_qubit, single_qubit
     ----------
     circuit : StepCircuit
     inputs : sequence of ``circuit.n_pairs`` arrays, each shape (N, 4) or (4,)
-        Bell weights in the order (I, X, Y, Z); input 0 is kept.
+        Normalised Bell weights in the order (I, X, Y, Z); input 0 is kept. They
+        are not validated here (this is the hot loop): validate at the boundary
+        with :func:`models.states.validate_bell`.
     rotations : sequence of ints or int arrays of shape (N,)
-        Bilateral rotation applied to each input before the CNOTs.
+        Bilateral rotation applied to each input before the CNOTs. A scalar
+        rotation per call is several times faster than per-row rotations, so
+        batch callers should group rows by rotation.
     two_qubit, single_qubit, measurement : float or array of shape (N,)
         Noise parameters (1 is perfect), per row where arrays.
 
@@ -172,35 +252,47 @@ def run_step(circuit: StepCircuit, inputs, rotations, *, two_qubit, single_qubit
         Bell weights of the kept pair given success. Rows with zero success
         probability return the maximally mixed pair (their cost is infinite).
     """
-    prepared = [
-        prepare(np.atleast_2d(p), r, single_qubit)
-        for p, r in zip(inputs, rotations, strict=True)
+    rotations = tuple(rotations)
+    if len(inputs) != circuit.n_pairs or len(rotations) != circuit.n_pairs:
+        raise ValueError(
+            f"{circuit.name} takes {circuit.n_pairs} inputs and {circuit.n_pairs} rotations, "
+            f"got {len(inputs)} and {len(rotations)}"
+        )
+    n = _batch_size(inputs, *rotations, two_qubit, single_qubit, measurement)
+    columns = [
+        _prepare_columns(p, r, single_qubit, n) for p, r in zip(inputs, rotations, strict=True)
     ]
-    batch = np.broadcast_shapes(*(p.shape[:-1] for p in prepared))
-    joint = np.broadcast_to(prepared[0], batch + (4,))
-    for p in prepared[1:]:
-        joint = (joint[..., :, None] * p[..., None, :]).reshape(batch + (-1,))
-    terms = circuit.terms
-    n_patterns = terms.shape[2] // 4
-    n_failed = terms.shape[0] - 1
+    plan = circuit.plan
     s = np.asarray(two_qubit, dtype=float) ** 2
-    combined = 0.0
-    for k in range(n_failed + 1):
-        coefficient = s ** (n_failed - k) * (1.0 - s) ** k
-        combined = combined + np.asarray(coefficient)[..., None] * (joint @ terms[k])
-    combined = combined.reshape(batch + (4, n_patterns))
-    q = np.asarray(check_error(measurement))[..., None]
-    weights = np.ones(batch + (n_patterns,)) if q.ndim else np.ones(n_patterns)
-    for bit in range(len(circuit.checks)):
-        flipped = (np.arange(n_patterns) >> bit) & 1
-        weights = weights * np.where(flipped, q, 1.0 - q)
-    unnormalised = (combined * weights[..., None, :]).sum(axis=-1)
-    success = unnormalised.sum(axis=-1)
+    q = np.asarray(check_error(measurement), dtype=float)
+    n_failed = len(plan) - 1
+    n_checks = len(circuit.checks)
+    check_weights = [
+        q ** bin(m).count("1") * (1.0 - q) ** (n_checks - bin(m).count("1"))
+        for m in range(2**n_checks)
+    ]
+    joint = None
+    unnormalised = 0.0
+    for k, (kind, data) in enumerate(plan):
+        if kind == "constant":
+            # inputs are normalised, so a term that forgets its input is a constant
+            grouped = data[:, :, None]
+        elif kind == "one_hot":
+            grouped = _sum_products(columns, data, n)
+        else:
+            if joint is None:
+                joint = _joint_weights(columns, n)
+            grouped = (data @ joint).reshape(4, -1, n)
+        gate_weight = s ** (n_failed - k) * (1.0 - s) ** k
+        for pattern, check_weight in enumerate(check_weights):
+            unnormalised = unnormalised + (gate_weight * check_weight) * grouped[:, pattern]
+    unnormalised = np.broadcast_to(unnormalised, (4, n))
+    success = unnormalised.sum(axis=0)
     safe = success > 0
-    kept = np.where(
-        safe[..., None], unnormalised / np.where(safe, success, 1.0)[..., None], 0.25
-    )
-    return success, kept
+    kept = unnormalised / np.where(safe, success, 1.0)
+    if not safe.all():
+        kept[:, ~safe] = 0.25
+    return success, kept.T
 
 
 def two_to_one(
