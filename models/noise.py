@@ -14,6 +14,7 @@ References
 from __future__ import annotations
 
 import math
+import numbers
 from dataclasses import dataclass
 
 import numpy as np
@@ -46,9 +47,15 @@ class NodeNoise:
     t2_s: float = math.inf
 
     def __post_init__(self):
-        _check_range("two_qubit", self.two_qubit, 0.0, 1.0, "the probability that a CNOT is perfect")
         _check_range(
-            "single_qubit", self.single_qubit, 0.0, 1.0, "the probability that a rotation is perfect"
+            "two_qubit", self.two_qubit, 0.0, 1.0, "the probability that a CNOT is perfect"
+        )
+        _check_range(
+            "single_qubit",
+            self.single_qubit,
+            0.0,
+            1.0,
+            "the probability that a rotation is perfect",
         )
         _check_range(
             "measurement",
@@ -59,8 +66,12 @@ class NodeNoise:
         )
         for name in ("t1_s", "t2_s"):
             value = getattr(self, name)
-            if not (isinstance(value, (int, float)) and value > 0) or math.isnan(value):
-                raise ValueError(f"{name} = {value!r} must be a time in seconds > 0 (inf: no decay)")
+            if not (_is_number(value) and value > 0) or math.isnan(value):
+                raise ValueError(
+                    f"{name} = {value!r} must be a time in seconds > 0 (inf: no decay)"
+                )
+        for name in ("two_qubit", "single_qubit", "measurement", "t1_s", "t2_s"):
+            object.__setattr__(self, name, float(getattr(self, name)))
         if self.t2_s > 2 * self.t1_s:
             raise ValueError(
                 f"t2_s = {self.t2_s!r} exceeds 2 * t1_s = {2 * self.t1_s!r}; "
@@ -68,8 +79,17 @@ class NodeNoise:
             )
 
 
+def _is_number(value) -> bool:
+    # numpy scalars count as numbers; True and False do not
+    return isinstance(value, numbers.Real) and not isinstance(value, (bool, np.bool_))
+
+
 def _check_range(name, value, low, high, meaning):
-    if not isinstance(value, (int, float)) or math.isnan(value) or not low <= value <= high:
+    if not _is_number(value):
+        raise ValueError(
+            f"{name} = {value!r} is not a number; it is {meaning}, in [{low:g}, {high:g}]"
+        )
+    if math.isnan(value) or not low <= value <= high:
         raise ValueError(f"{name} = {value!r} is outside [{low:g}, {high:g}]; it is {meaning}")
 
 
@@ -97,9 +117,7 @@ def check_error(measurement) -> np.ndarray:
 
 
 # Bell weights -> correlations (1, <XX>, <YY>, <ZZ>); rows are orthogonal with norm^2 4
-CORRELATIONS = np.array(
-    [[1, 1, 1, 1], [1, 1, -1, -1], [-1, 1, -1, 1], [1, -1, -1, 1]], dtype=float
-)
+CORRELATIONS = np.array([[1, 1, 1, 1], [1, 1, -1, -1], [-1, 1, -1, 1], [1, -1, -1, 1]], dtype=float)
 
 
 def memory_decays(wait_s, t1_s, t2_s) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -161,7 +179,9 @@ def store(pair, *, wait_s, t1_s, t2_s) -> np.ndarray:
 
 def _xor_table() -> np.ndarray:
     k = np.arange(4)
-    return label_from_bits(X_BIT[k][:, None] ^ X_BIT[k][None, :], Z_BIT[k][:, None] ^ Z_BIT[k][None, :])
+    return label_from_bits(
+        X_BIT[k][:, None] ^ X_BIT[k][None, :], Z_BIT[k][:, None] ^ Z_BIT[k][None, :]
+    )
 
 
 # label of the product of two Paulis (up to phase)

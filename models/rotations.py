@@ -49,9 +49,7 @@ def rotation_index(name: str) -> int:
     try:
         return ROTATION_NAMES.index(name)
     except ValueError:
-        raise ValueError(
-            f"rotation {name!r} is not one of {', '.join(ROTATION_NAMES)}"
-        ) from None
+        raise ValueError(f"rotation {name!r} is not one of {', '.join(ROTATION_NAMES)}") from None
 
 
 def undetected_label(rotation: int) -> int:

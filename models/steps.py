@@ -58,11 +58,17 @@ class StepCircuit:
 
     def __post_init__(self):
         for control, target in self.cnots:
-            if control == target or not (0 <= control < self.n_pairs and 0 <= target < self.n_pairs):
-                raise ValueError(f"cnot ({control}, {target}) must join two of the {self.n_pairs} pairs")
+            if control == target or not (
+                0 <= control < self.n_pairs and 0 <= target < self.n_pairs
+            ):
+                raise ValueError(
+                    f"cnot ({control}, {target}) must join two of the {self.n_pairs} pairs"
+                )
         for pair, basis in self.checks:
             if not 1 <= pair < self.n_pairs or basis not in ("X", "Z"):
-                raise ValueError(f"check ({pair}, {basis!r}) must measure a sacrificed pair in X or Z")
+                raise ValueError(
+                    f"check ({pair}, {basis!r}) must measure a sacrificed pair in X or Z"
+                )
 
     @cached_property
     def terms(self) -> np.ndarray:
@@ -110,7 +116,7 @@ def _depolarize_matrix(n, pairs):
     others = [i for i in range(n) if i not in pairs]
     key = _joint_index(x[:, others], z[:, others]) if others else np.zeros(4**n, dtype=np.intp)
     same = key[:, None] == key[None, :]
-    return same / 16.0 ** len(pairs)
+    return same / 4.0 ** len(pairs)
 
 
 def _compile(circuit: StepCircuit) -> np.ndarray:
@@ -140,27 +146,27 @@ def _compile(circuit: StepCircuit) -> np.ndarray:
 
 def _joint_weights(columns, n):
     """Joint weights of all inputs, shape (4**n_pairs, N), pair 0 most significant."""
-    joint = columns[0]
+    joint = np.stack(columns[0])
     for c in columns[1:]:
-        joint = (joint[:, None, :] * c[None, :, :]).reshape(-1, n)
+        joint = (joint[:, None, :] * np.stack(c)[None, :, :]).reshape(-1, n)
     return joint
 
 
-def _sum_products(columns, groups, n):
+def _sum_products(columns, groups):
     """Grouped sums of input products for a term that sends each joint label to one outcome.
 
     ``groups[o][m]`` lists the joint labels (as per-pair label tuples) that end as
     kept label ``o`` with parity pattern ``m``; summing their products directly
     avoids forming all 4**n_pairs joint weights.
     """
-    out = np.zeros((4, len(groups[0]), n))
+    out = [[0.0] * len(groups[0]) for _ in range(4)]
     for o, per_pattern in enumerate(groups):
         for m, labels in enumerate(per_pattern):
             for label in labels:
                 product_ = columns[0][label[0]]
-                for c, k in zip(columns[1:], label[1:]):
+                for c, k in zip(columns[1:], label[1:], strict=True):
                     product_ = product_ * c[k]
-                out[o, m] += product_
+                out[o][m] = out[o][m] + product_
     return out
 
 
@@ -183,7 +189,9 @@ def _plan(terms: np.ndarray, n_pairs: int):
 
 
 TWO_TO_ONE = StepCircuit("two_to_one", 2, cnots=((0, 1),), checks=((1, "Z"),))
-DOUBLE_SELECTION = StepCircuit("double_selection", 3, cnots=((0, 1), (2, 1)), checks=((1, "Z"), (2, "X")))
+DOUBLE_SELECTION = StepCircuit(
+    "double_selection", 3, cnots=((0, 1), (2, 1)), checks=((1, "Z"), (2, "X"))
+)
 
 
 def prepare(pair, rotation, single_qubit) -> np.ndarray:
@@ -200,23 +208,31 @@ def prepare(pair, rotation, single_qubit) -> np.ndarray:
     return depolarize(rotated, survival)
 
 
+_SLOT_SOURCES = [np.ascontiguousarray(SOURCES[:, slot]) for slot in range(4)]
+# rows per chunk: small enough that a chunk's columns stay in cache
+CHUNK_ROWS = 16384
+
+
 def _prepare_columns(pair, rotation, single_qubit, n):
-    """As :func:`prepare`, on the transposed layout: returns shape (4, n).
+    """As :func:`prepare`, on the transposed layout: returns 4 columns of length n.
 
     Working on four contiguous columns of length N (rather than N rows of 4)
     keeps every elementwise product a long vector operation.
     """
-    columns = np.asarray(pair, dtype=float).reshape(-1, 4).T
+    rows = np.broadcast_to(np.asarray(pair, dtype=float).reshape(-1, 4), (n, 4))
     r = np.asarray(rotation, dtype=np.intp)
     if r.ndim == 0:
-        rotated = columns[SOURCES[r]]
+        columns = [rows[:, SOURCES[r, slot]] for slot in range(4)]
         if r == IDENTITY:
-            return np.broadcast_to(rotated, (4, n))
+            return columns
     else:
-        index = np.broadcast_to(SOURCES[r].T, (4, n))
-        rotated = np.take_along_axis(np.broadcast_to(columns, (4, n)), index, axis=0)
+        # slot j of row i is flat element 4 i + SOURCES[r_i, j]; I never moves
+        flat = np.ascontiguousarray(rows).ravel()
+        base = 4 * np.arange(n)
+        columns = [rows[:, 0]] + [flat.take(base + _SLOT_SOURCES[j].take(r)) for j in (1, 2, 3)]
     survival = np.where(r == IDENTITY, 1.0, np.asarray(single_qubit, dtype=float)) ** 2
-    return survival * rotated + (1.0 - survival) * 0.25
+    floor = (1.0 - survival) * 0.25
+    return [survival * c + floor for c in columns]
 
 
 def _batch_size(inputs, *parameters) -> int:
@@ -259,44 +275,92 @@ def run_step(circuit: StepCircuit, inputs, rotations, *, two_qubit, single_qubit
             f"got {len(inputs)} and {len(rotations)}"
         )
     n = _batch_size(inputs, *rotations, two_qubit, single_qubit, measurement)
-    columns = [
-        _prepare_columns(p, r, single_qubit, n) for p, r in zip(inputs, rotations, strict=True)
-    ]
-    plan = circuit.plan
     s = np.asarray(two_qubit, dtype=float) ** 2
     q = np.asarray(check_error(measurement), dtype=float)
+    p1 = np.asarray(single_qubit, dtype=float)
+    success = np.empty(n)
+    # filled label by label as contiguous columns; returned as an (N, 4) view
+    kept = np.empty((4, n))
+    for lo in range(0, n, CHUNK_ROWS):
+        hi = min(lo + CHUNK_ROWS, n)
+        part = [_rows(p, lo, hi, n, pair=True) for p in inputs]
+        _evaluate_chunk(
+            circuit,
+            part,
+            [_rows(r, lo, hi, n) for r in rotations],
+            s=_rows(s, lo, hi, n),
+            q=_rows(q, lo, hi, n),
+            p1=_rows(p1, lo, hi, n),
+            success=success[lo:hi],
+            kept=kept[:, lo:hi],
+        )
+    return success, kept.T
+
+
+def _rows(x, lo, hi, n, pair=False):
+    """Rows lo:hi of a per-row argument; a shared (broadcast) argument as it is."""
+    x = np.asarray(x)
+    per_row = x.ndim == (2 if pair else 1) and x.shape[0] == n
+    return x[lo:hi] if per_row else x
+
+
+def _power(x, k: int):
+    result = 1.0
+    for _ in range(k):
+        result = result * x
+    return result
+
+
+def _evaluate_chunk(circuit, inputs, rotations, *, s, q, p1, success, kept):
+    """One chunk of :func:`run_step`, written into ``success`` (n,) and ``kept`` (4, n)."""
+    n = success.shape[0]
+    columns = [_prepare_columns(p, r, p1, n) for p, r in zip(inputs, rotations, strict=True)]
+    plan = circuit.plan
     n_failed = len(plan) - 1
     n_checks = len(circuit.checks)
+    # integer powers by repeated products: np.power on arrays is far slower
     check_weights = [
-        q ** bin(m).count("1") * (1.0 - q) ** (n_checks - bin(m).count("1"))
+        _power(q, bin(m).count("1")) * _power(1.0 - q, n_checks - bin(m).count("1"))
         for m in range(2**n_checks)
     ]
     joint = None
-    unnormalised = 0.0
+    unnormalised = [0.0] * 4
     for k, (kind, data) in enumerate(plan):
+        gate_weight = _power(s, n_failed - k) * _power(1.0 - s, k)
+        weights = [gate_weight * w for w in check_weights]
         if kind == "constant":
             # inputs are normalised, so a term that forgets its input is a constant
-            grouped = data[:, :, None]
-        elif kind == "one_hot":
-            grouped = _sum_products(columns, data, n)
+            for o in range(4):
+                unnormalised[o] = unnormalised[o] + sum(
+                    w * data[o, m] for m, w in enumerate(weights)
+                )
+            continue
+        if kind == "one_hot":
+            grouped = _sum_products(columns, data)
         else:
             if joint is None:
                 joint = _joint_weights(columns, n)
             grouped = (data @ joint).reshape(4, -1, n)
-        gate_weight = s ** (n_failed - k) * (1.0 - s) ** k
-        for pattern, check_weight in enumerate(check_weights):
-            unnormalised = unnormalised + (gate_weight * check_weight) * grouped[:, pattern]
-    unnormalised = np.broadcast_to(unnormalised, (4, n))
-    success = unnormalised.sum(axis=0)
+        for o in range(4):
+            for m, w in enumerate(weights):
+                unnormalised[o] = unnormalised[o] + w * grouped[o][m]
+    success[:] = unnormalised[0] + unnormalised[1] + unnormalised[2] + unnormalised[3]
     safe = success > 0
-    kept = unnormalised / np.where(safe, success, 1.0)
+    scale = 1.0 / np.where(safe, success, 1.0)
+    for o in range(4):
+        np.multiply(unnormalised[o], scale, out=kept[o])
     if not safe.all():
         kept[:, ~safe] = 0.25
-    return success, kept.T
 
 
 def two_to_one(
-    kept, sacrificed, *, rotations=(IDENTITY, IDENTITY), two_qubit=1.0, single_qubit=1.0, measurement=1.0
+    kept,
+    sacrificed,
+    *,
+    rotations=(IDENTITY, IDENTITY),
+    two_qubit=1.0,
+    single_qubit=1.0,
+    measurement=1.0,
 ):
     """The 2->1 step: bilateral CNOT kept -> sacrificed, Z-basis comparison of the sacrificed pair.
 
