@@ -1,5 +1,18 @@
 """The exact Bell-diagonal physics of stillroom: pair states, noise, steps."""
 
+from .baselines import BASELINES, Baseline, baseline
+from .chain import (
+    LINEAR_ROUNDS,
+    ChainBatch,
+    advance,
+    advance_every,
+    evaluate_linear,
+    linear_codes,
+    recipe_from_codes,
+    round_code,
+    start_chains,
+)
+from .evaluate import RecipeResult, RoundFigures, evaluate
 from .noise import (
     NodeNoise,
     check_error,
@@ -10,6 +23,16 @@ from .noise import (
     store,
     store_with_decays,
 )
+from .notation import (
+    RecipeSyntaxError,
+    canonical,
+    format_recipe,
+    parse_recipe,
+    recipe_from_json,
+    recipe_to_json,
+)
+from .profile import FIBRE_SPEED_KM_S, Profile
+from .recipes import Recipe, Round
 from .rotations import (
     COMPOSE,
     IDENTITY,
@@ -48,4 +71,69 @@ from .steps import (
     two_to_one,
 )
 
-__all__ = [name for name in dir() if not name.startswith("_")]
+__all__ = [
+    "BASELINES",
+    "BELL_NAMES",
+    "Baseline",
+    "COMPOSE",
+    "ChainBatch",
+    "DOUBLE_SELECTION",
+    "FIBRE_SPEED_KM_S",
+    "I",
+    "IDENTITY",
+    "INVERSE",
+    "LINEAR_ROUNDS",
+    "NodeNoise",
+    "PERMUTATIONS",
+    "Profile",
+    "ROTATION_NAMES",
+    "Recipe",
+    "RecipeResult",
+    "RecipeSyntaxError",
+    "Round",
+    "RoundFigures",
+    "StepCircuit",
+    "TWO_TO_ONE",
+    "X",
+    "Y",
+    "Z",
+    "advance",
+    "advance_every",
+    "baseline",
+    "bell_diagonal",
+    "bit_flip_pair",
+    "canonical",
+    "check_error",
+    "compose",
+    "depolarize",
+    "double_selection",
+    "evaluate",
+    "evaluate_linear",
+    "fidelity",
+    "format_recipe",
+    "from_density_matrix",
+    "hashing_yield",
+    "inverse",
+    "linear_codes",
+    "memory_decays",
+    "memory_qubit_twirl_probabilities",
+    "parse_recipe",
+    "pauli_channel",
+    "phase_flip_pair",
+    "prepare",
+    "recipe_from_codes",
+    "recipe_from_json",
+    "recipe_to_json",
+    "rotate",
+    "rotation_index",
+    "round_code",
+    "run_step",
+    "start_chains",
+    "store",
+    "store_with_decays",
+    "twirl_to_werner",
+    "two_to_one",
+    "undetected_label",
+    "validate_bell",
+    "werner",
+]

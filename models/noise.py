@@ -148,7 +148,8 @@ def store_with_decays(pair, dephasing2, damping1, damping2) -> np.ndarray:
     pair : array_like, shape (..., 4)
     dephasing2, damping1, damping2 : arrays broadcastable to ``pair.shape[:-1]``
     """
-    c = np.asarray(pair, dtype=float) @ CORRELATIONS.T
+    # einsum copes with the strided (N, 4) views the steps return; matmul does not
+    c = np.einsum("...i,ji->...j", np.asarray(pair, dtype=float), CORRELATIONS)
     dephasing2 = np.asarray(dephasing2, dtype=float)
     damping1 = np.asarray(damping1, dtype=float)
     damping2 = np.asarray(damping2, dtype=float)
@@ -161,7 +162,7 @@ def store_with_decays(pair, dephasing2, damping1, damping2) -> np.ndarray:
         ],
         axis=-1,
     )
-    return c_new @ CORRELATIONS / 4.0
+    return np.einsum("...j,jk->...k", c_new, CORRELATIONS) / 4.0
 
 
 def store(pair, *, wait_s, t1_s, t2_s) -> np.ndarray:

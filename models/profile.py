@@ -58,8 +58,8 @@ class Profile:
         if largest <= 0.5:
             k = self.raw_pair.index(largest)
             raise ValueError(
-                f"raw_pair's largest Bell weight is {largest:g} ({BELL_NAMES[k]}); recurrence and "
-                "pumping need one weight above 1/2, otherwise the pair may not be distillable this way"
+                f"raw_pair's largest Bell weight is {largest:g} ({BELL_NAMES[k]}); recurrence "
+                "and pumping need one weight above 1/2, which this pair does not have"
             )
 
     @property

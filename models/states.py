@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-I, X, Y, Z = 0, 1, 2, 3
+I, X, Y, Z = 0, 1, 2, 3  # noqa: E741 (the Pauli labels' own names)
 LABELS = ("I", "X", "Y", "Z")
 BELL_NAMES = ("Phi+", "Psi+", "Psi-", "Phi-")
 # binary (x, z) labels of I, X, Y, Z
