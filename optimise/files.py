@@ -19,6 +19,10 @@ def write_atomic(path, data: str | bytes) -> Path:
             handle.write(data)
             handle.flush()
             os.fsync(handle.fileno())
+        # mkstemp makes the file private (0600); give it the mode a plain open() would
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)

@@ -1,0 +1,140 @@
+"""Resuming a study: trials left running by a dead process, and their recipes asked again.
+
+A trial stays RUNNING in the storage when its process is killed. On resume:
+
+1. :func:`fail_stale_trials` marks FAIL each RUNNING trial whose worker is known to
+   be gone: a process of this host that no longer exists (or whose pid now belongs
+   to a younger process), or, for RDB storages, a trial whose heartbeat stopped
+   (optuna's own check). A trial of a live worker, here or on another machine, is
+   left alone.
+2. :func:`reask_abandoned` evaluates again the recipe of every such trial (a FAIL
+   without the objective's ``error`` attribute, which is how optuna also records a
+   Ctrl-C) and adds it as a finished trial with the same parameters, distributions
+   and sampler bookkeeping, marked ``reask_of``. So no finished trial is lost and
+   none is repeated, and the sampler (:mod:`optimise.samplers`) sees the same
+   history as an uninterrupted run. A trial killed before its recipe was fully
+   drawn cannot be rebuilt; the seeded sampler draws the same recipe again.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import warnings
+from datetime import datetime, timedelta
+
+import optuna
+from optuna.trial import TrialState, create_trial
+
+from models.evaluate import evaluate
+
+from .objective import WORKER_ATTR, objective_values, process_start, trial_attrs, trial_constraints
+from .samplers import ERROR_ATTR
+from .space import distributions_for, recipe_from_params
+
+REASK_ATTR = "reask_of"
+ORPHAN_GRACE = timedelta(minutes=5)  # a RUNNING trial with no worker yet, for this long: dead
+
+
+def _alive(owner: dict) -> bool:
+    pid = owner.get("pid")
+    if not isinstance(pid, int):
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        pass  # exists, another user's
+    started = owner.get("start")
+    return started is None or process_start(pid) in (None, started)
+
+
+def is_stale(trial, host: str | None = None, now: datetime | None = None) -> bool:
+    """Whether a RUNNING trial's worker is known to be gone (see the module docstring)."""
+    host = host or socket.gethostname()
+    owner = trial.user_attrs.get(WORKER_ATTR)
+    if owner is None:
+        # the objective records its worker first thing; none for minutes means it died
+        start = trial.datetime_start
+        return start is not None and (now or datetime.now()) - start > ORPHAN_GRACE
+    if owner.get("host") != host:
+        return False
+    return not _alive(owner)
+
+
+def fail_stale_trials(study) -> list[int]:
+    """Mark FAIL the RUNNING trials of dead workers; returns their numbers."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # fail_stale_trials is flagged experimental
+        optuna.storages.fail_stale_trials(study)  # RDB heartbeats; no-op elsewhere
+    failed = []
+    for trial in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)):
+        if is_stale(trial):
+            try:
+                study.tell(trial.number, state=TrialState.FAIL, skip_if_finished=True)
+            except (ValueError, RuntimeError):
+                continue  # finished meanwhile by its worker: not stale after all
+            failed.append(trial.number)
+    return failed
+
+
+def abandoned_trials(study) -> list:
+    """FAIL trials without an objective error and not yet asked again, in number order."""
+    trials = study.get_trials(deepcopy=False)
+    asked_again = {t.user_attrs.get(REASK_ATTR) for t in trials}
+    return [
+        t
+        for t in trials
+        if t.state == TrialState.FAIL
+        and ERROR_ATTR not in t.user_attrs
+        and t.number not in asked_again
+    ]
+
+
+def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: dict) -> list[int]:
+    """Evaluate the abandoned trials' recipes again and add them as finished trials.
+
+    Returns the numbers of the trials asked again.
+    """
+    done = []
+    for trial in abandoned_trials(study):
+        params = dict(trial.system_attrs.get("fixed_params", {}))
+        params.update(trial.params)
+        try:
+            recipe = recipe_from_params(params, max_depth)
+        except (KeyError, ValueError):
+            continue  # cut short before its recipe was drawn: the sampler draws it again
+        used = _used_params(params, recipe.depth)
+        result = evaluate(recipe, profile)
+        attrs = {k: v for k, v in trial.user_attrs.items() if k != ERROR_ATTR}
+        attrs.update(trial_attrs(result))
+        attrs.update({REASK_ATTR: trial.number, WORKER_ATTR: worker, "depth": recipe.depth})
+        constraints = trial_constraints(result, limits)
+        study.add_trial(
+            create_trial(
+                state=TrialState.COMPLETE,
+                values=objective_values(result, objectives),
+                params=used,
+                distributions=distributions_for(used, max_depth),
+                user_attrs=attrs,
+                system_attrs={
+                    k: v for k, v in trial.system_attrs.items() if not k.startswith("constraints")
+                },
+                constraints={k: min(v, 1e300) for k, v in constraints.items()} or None,
+            )
+        )
+        done.append(trial.number)
+    return done
+
+
+def _used_params(params: dict, depth: int) -> dict:
+    """The parameters a trial of this depth suggests (an enqueued set may hold more)."""
+    out = {}
+    for k, v in params.items():
+        if k != "depth":
+            i = int(k[1 : k.index(".")])
+            if i >= depth or (k.endswith(".rot2") and params.get(f"r{i}.selection") != "double"):
+                continue
+        out[k] = v
+    return out

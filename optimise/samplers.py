@@ -1,0 +1,170 @@
+"""Seeded optuna samplers whose choices survive an interruption.
+
+optuna does not store a sampler's random state, so a sampler seeded once and
+re-created on resume would draw different recipes than an uninterrupted run.
+:class:`SlotSeededSampler` re-seeds its inner sampler before every trial from
+``(seed + worker, slot)``, where the slot is the number of trials already finished
+in the study (trials abandoned by a killed process do not count). Every sampler
+used here draws only from its random state and from the finished trials in the
+storage, so a single worker asks trial ``k`` for the same recipe however many
+times the run was stopped before it.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import optuna
+from optuna.samplers import BaseSampler
+from optuna.samplers._lazy_random_state import LazyRandomState
+from optuna.trial import TrialState
+
+SAMPLERS = ("nsga2", "tpe", "random")
+NSGA2_POPULATION = 40
+TPE_STARTUP_TRIALS = 20
+ERROR_ATTR = "error"  # user attr set on a trial whose objective raised
+
+
+def sampler_settings(name: str, seed: int) -> dict:
+    """Every setting of a sampler, as recorded in the study and in ``settings.json``."""
+    if name not in SAMPLERS:
+        raise ValueError(f"sampler = {name!r} is not one of {', '.join(SAMPLERS)}")
+    seeding = "each trial's sampler is seeded from (seed + worker index, number of finished trials)"
+    if name == "nsga2":
+        return {
+            "name": "nsga2",
+            "class": "optuna.samplers.NSGAIISampler",
+            "seed": seed,
+            "population_size": NSGA2_POPULATION,
+            "crossover": "uniform",
+            "crossover_prob": 0.9,
+            "swapping_prob": 0.5,
+            "mutation_prob": None,
+            "seeding": seeding,
+        }
+    if name == "tpe":
+        return {
+            "name": "tpe",
+            "class": "optuna.samplers.TPESampler",
+            "seed": seed,
+            "n_startup_trials": TPE_STARTUP_TRIALS,
+            "multivariate": True,
+            "group": True,
+            "constant_liar": False,
+            "seeding": seeding,
+        }
+    return {
+        "name": "random",
+        "class": "optuna.samplers.RandomSampler",
+        "seed": seed,
+        "seeding": seeding,
+    }
+
+
+def build_sampler(settings: dict, seed: int) -> BaseSampler:
+    """An optuna sampler from :func:`sampler_settings`, with the given seed."""
+    name = settings["name"]
+    if name == "nsga2":
+        return optuna.samplers.NSGAIISampler(
+            population_size=settings["population_size"],
+            crossover_prob=settings["crossover_prob"],
+            swapping_prob=settings["swapping_prob"],
+            mutation_prob=settings["mutation_prob"],
+            seed=seed,
+        )
+    if name == "tpe":
+        import warnings
+
+        with warnings.catch_warnings():  # multivariate and group are flagged experimental
+            warnings.simplefilter("ignore", optuna.exceptions.ExperimentalWarning)
+            return optuna.samplers.TPESampler(
+                n_startup_trials=settings["n_startup_trials"],
+                multivariate=settings["multivariate"],
+                group=settings["group"],
+                constant_liar=settings["constant_liar"],
+                seed=seed,
+            )
+    return optuna.samplers.RandomSampler(seed=seed)
+
+
+def finished_count(study) -> int:
+    """Trials that count towards the budget: complete, pruned, or failed by the objective.
+
+    A trial failed because its process died (no ``error`` attribute) does not count:
+    its recipe is asked again on resume.
+    """
+    count = 0
+    for trial in study.get_trials(
+        deepcopy=False, states=(TrialState.COMPLETE, TrialState.PRUNED, TrialState.FAIL)
+    ):
+        if trial.state != TrialState.FAIL or ERROR_ATTR in trial.user_attrs:
+            count += 1
+    return count
+
+
+def slot_seed(seed: int, worker: int, slot: int) -> int:
+    """A 32-bit seed for one trial, independent across workers and slots."""
+    return int(np.random.SeedSequence([int(seed) + int(worker), int(slot)]).generate_state(1)[0])
+
+
+def _random_states(obj, depth: int = 0) -> list:
+    """The random states a sampler draws from: its own and those of samplers it holds."""
+    found = []
+    for value in vars(obj).values():
+        if isinstance(value, LazyRandomState):
+            found.append(value)
+        elif isinstance(value, BaseSampler) and depth < 2:
+            found += _random_states(value, depth + 1)
+    return found
+
+
+def reseed(sampler, seed: int) -> bool:
+    """Seed every random state of a built-in optuna sampler in place; False if none found.
+
+    Keeping the sampler (rather than building a new one per trial) keeps its caches,
+    such as the search space it has inferred, which otherwise cost a pass over all
+    trials for every new trial. The caches do not change what it draws.
+    """
+    states = _random_states(sampler)
+    for i, state in enumerate(states):
+        state.rng.seed(slot_seed(seed, i, 0))
+    return bool(states)
+
+
+class SlotSeededSampler(BaseSampler):
+    """Delegates to a sampler re-seeded for each trial (see module docstring).
+
+    Parameters
+    ----------
+    settings : dict from :func:`sampler_settings`
+    worker : int
+        Index of the worker process; worker ``i`` draws from seed ``seed + i``.
+    """
+
+    def __init__(self, settings: dict, worker: int = 0):
+        self.settings = dict(settings)
+        self.worker = int(worker)
+        self.last_slot = None
+        self._inner = build_sampler(self.settings, slot_seed(self.settings["seed"], self.worker, 0))
+
+    def before_trial(self, study, trial):
+        self.last_slot = finished_count(study)
+        seed = slot_seed(self.settings["seed"], self.worker, self.last_slot)
+        if not reseed(self._inner, seed):  # an optuna whose samplers hold their state elsewhere
+            self._inner = build_sampler(self.settings, seed)
+        self._inner.before_trial(study, trial)
+
+    def infer_relative_search_space(self, study, trial):
+        return self._inner.infer_relative_search_space(study, trial)
+
+    def sample_relative(self, study, trial, search_space):
+        return self._inner.sample_relative(study, trial, search_space)
+
+    def sample_independent(self, study, trial, param_name, param_distribution):
+        return self._inner.sample_independent(study, trial, param_name, param_distribution)
+
+    def after_trial(self, study, trial, state, values):
+        self._inner.after_trial(study, trial, state, values)
+
+    def reseed_rng(self) -> None:
+        # seeds are derived per trial; nothing to reseed (optuna calls this for n_jobs > 1)
+        pass
