@@ -1,44 +1,49 @@
-"""Everything around the physics: search, storage, run folders, reports, command line."""
+"""Everything around the physics: search, storage, run folders, reports, command line.
 
-from .errors import InputError, RunError, StillroomError
-from .exhaustive import ExhaustiveFront, exhaustive_front
-from .files import write_atomic, write_json_atomic
-from .limits import Limits
-from .pareto import hypervolume_2d, pareto_mask, unique_front
-from .search import SearchOutcome, load_run, run_search
-from .storage import open_storage
-from .targets import TargetAnswer, cheapest_reaching
+Public names are imported on first use, so that ``stillroom --help`` does not
+load optuna and numpy (PEP 562 module ``__getattr__``).
+"""
 
-__all__ = [
-    "StillroomError",
-    "InputError",
-    "RunError",
-    "ExhaustiveFront",
-    "exhaustive_front",
-    "write_atomic",
-    "write_json_atomic",
-    "Limits",
-    "hypervolume_2d",
-    "pareto_mask",
-    "unique_front",
-    "SearchOutcome",
-    "load_run",
-    "run_search",
-    "open_storage",
-    "TargetAnswer",
-    "cheapest_reaching",
-]
+from importlib import import_module
 
-# noise profiles, reports and sweeps (the command line itself is optimise.cli.main)
-from .profiles import demo_profile, load_profile, parse_profile  # noqa: E402
-from .reports import ASSUMPTIONS, write_reports  # noqa: E402
-from .sweep import run_sweep  # noqa: E402
+_EXPORTS = {
+    "StillroomError": "errors",
+    "InputError": "errors",
+    "RunError": "errors",
+    "ExhaustiveFront": "exhaustive",
+    "exhaustive_front": "exhaustive",
+    "write_atomic": "files",
+    "write_json_atomic": "files",
+    "Limits": "limits",
+    "hypervolume_2d": "pareto",
+    "pareto_mask": "pareto",
+    "unique_front": "pareto",
+    "SearchOutcome": "search",
+    "load_run": "search",
+    "run_search": "search",
+    "open_storage": "storage",
+    "TargetAnswer": "targets",
+    "cheapest_reaching": "targets",
+    # noise profiles, reports and sweeps (the command line itself is optimise.cli.main)
+    "demo_profile": "profiles",
+    "load_profile": "profiles",
+    "parse_profile": "profiles",
+    "ASSUMPTIONS": "reports",
+    "write_reports": "reports",
+    "run_sweep": "sweep",
+}
 
-__all__ += [
-    "demo_profile",
-    "load_profile",
-    "parse_profile",
-    "ASSUMPTIONS",
-    "write_reports",
-    "run_sweep",
-]
+__all__ = list(_EXPORTS)
+
+
+def __getattr__(name):
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'optimise' has no attribute {name!r}")
+    value = getattr(import_module(f".{module}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))

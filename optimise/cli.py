@@ -655,6 +655,22 @@ def cmd_table(args) -> int:
 # ----------------------------------------------------------------------------- parser
 
 
+
+def _add_limit_options(p) -> None:
+    """The limits that search and sweep share."""
+    p.add_argument(
+        "--max-memory",
+        type=_positive_int,
+        metavar="Q",
+        help="only recipes needing at most Q memory qubits per node",
+    )
+    p.add_argument(
+        "--max-time-per-output",
+        type=_seconds,
+        metavar="S",
+        help="only recipes taking at most S seconds per output pair",
+    )
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="stillroom", description=MAIN_HELP, epilog=MAIN_EPILOG, formatter_class=_Formatter
@@ -755,18 +771,7 @@ def build_parser() -> argparse.ArgumentParser:
         metavar="LIST",
         help="fidelity,yield[,memory][,time] (default: fidelity,yield)",
     )
-    p.add_argument(
-        "--max-memory",
-        type=_positive_int,
-        metavar="Q",
-        help="only recipes needing at most Q memory qubits per node",
-    )
-    p.add_argument(
-        "--max-time-per-output",
-        type=_seconds,
-        metavar="S",
-        help="only recipes taking at most S seconds per output pair",
-    )
+    _add_limit_options(p)
     p.add_argument(
         "--exhaustive-depth",
         type=_non_negative_int,
@@ -869,18 +874,7 @@ def build_parser() -> argparse.ArgumentParser:
         help="largest recipe depth, searched exhaustively (default: %(default)s; "
         "depth 3 takes minutes per value)",
     )
-    p.add_argument(
-        "--max-memory",
-        type=_positive_int,
-        metavar="Q",
-        help="only recipes needing at most Q memory qubits per node",
-    )
-    p.add_argument(
-        "--max-time-per-output",
-        type=_seconds,
-        metavar="S",
-        help="only recipes taking at most S seconds per output pair",
-    )
+    _add_limit_options(p)
     p.add_argument(
         "--workers",
         type=_positive_int,

@@ -227,7 +227,7 @@ def exhaustive_front(
     count_last=True,
     on_depth=None,
 ) -> ExhaustiveFront:
-    """Exact Pareto front of every linear recipe with 1..max_depth rounds.
+    """Exact Pareto front of every linear recipe with 0..max_depth rounds (0: the raw pair).
 
     Parameters
     ----------
@@ -285,7 +285,10 @@ def exhaustive_front(
     }
     level = start_chains(profile, 1)
     back = []  # per depth: (parent, code) of each kept state
-    candidates = []  # (depth, index at that depth, values)
+    # doing nothing is a recipe too: the raw pair itself (depth 0) beats every
+    # recipe that yields less and ends below the raw fidelity
+    raw_values, _ = objective_values(level, objectives)
+    candidates = [(0, np.array([0]), raw_values)]  # (depth, index at that depth, values)
     states, evaluations = [], []
     complete_depth = 0
     for depth in range(1, depth_goal + 1):

@@ -8,6 +8,7 @@ from pathlib import Path
 from models.baselines import BASELINES, baseline
 from models.evaluate import evaluate
 from models.notation import parse_recipe
+from models.recipes import Recipe
 
 from . import runfolder
 from .files import write_json_atomic
@@ -88,6 +89,8 @@ class FrontTracker:
         self.space_sentence = f"{where}; and {describe_space(max_depth)}, sampled by optuna" + (
             "" if complete else " (not proven complete)"
         )
+        # the raw pair is a recipe too, so nothing worse than doing nothing is listed
+        self.offer(evaluate(Recipe(()), profile).to_dict(), 0)
         for r in exhaustive.results:
             self.offer(r.to_dict(), len(r.trace))
         for r, _, depth in baselines:  # the study starts from them; listed even before it runs

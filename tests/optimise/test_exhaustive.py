@@ -84,7 +84,7 @@ OBJECTIVE_COLUMNS = {
 
 def all_sequences(codes, depth):
     rows = []
-    for d in range(1, depth + 1):
+    for d in range(0, depth + 1):  # depth 0 is the raw pair, itself a candidate
         for seq in itertools.product(codes, repeat=d):
             rows.append(list(seq) + [-1] * (depth - d))
     return np.array(rows, dtype=np.intp)
