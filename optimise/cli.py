@@ -120,24 +120,21 @@ def _fidelities(text: str) -> list[float]:
     return [_fidelity(part) for part in text.split(",") if part.strip()]
 
 
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{value} must be at least 1")
-    return value
+def _whole_number_at_least(low: int):
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if value < low:
+            raise argparse.ArgumentTypeError(f"{value} must be at least {low}")
+        return value
+
+    return parse
 
 
-def _non_negative_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"{value} must be at least 0")
-    return value
+_positive_int = _whole_number_at_least(1)
+_non_negative_int = _whole_number_at_least(0)
 
 
 def _seconds(text: str) -> float:
@@ -655,7 +652,6 @@ def cmd_table(args) -> int:
 # ----------------------------------------------------------------------------- parser
 
 
-
 def _add_limit_options(p) -> None:
     """The limits that search and sweep share."""
     p.add_argument(
@@ -670,6 +666,7 @@ def _add_limit_options(p) -> None:
         metavar="S",
         help="only recipes taking at most S seconds per output pair",
     )
+
 
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(

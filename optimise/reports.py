@@ -26,13 +26,13 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 from datetime import UTC, datetime
 from pathlib import Path
 
 from .errors import RunError
 from .files import write_atomic, write_json_atomic
+from .runfolder import load_run
 
 ASSUMPTIONS = (
     "Model assumptions: every pair is Bell-diagonal; gate noise is depolarising (Pauli) "
@@ -91,22 +91,12 @@ PLOT_MISSING = "matplotlib is not installed, so no plots were drawn (pip install
 
 def load_front(run_dir) -> dict:
     """The parsed ``front.json`` of a run folder, or :class:`RunError` saying why not."""
-    path = Path(run_dir) / "front.json"
-    if not path.is_file():
-        if not Path(run_dir).is_dir():
-            raise RunError(f"no run folder {str(run_dir)!r}; start one with `stillroom search`")
-        raise RunError(
-            f"{run_dir} has no front.json yet; a search writes it after its first trials"
-        )
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as error:
-        raise RunError(
-            f"{path} is not valid JSON ({error}); rerun the search to rewrite it"
-        ) from None
+    data = load_run(run_dir)
     for key in ("profile", "front", "baselines"):
         if key not in data:
-            raise RunError(f"{path} has no {key!r} key; it was not written by stillroom search")
+            raise RunError(
+                f"{run_dir}/front.json has no {key!r} key; it was not written by stillroom search"
+            )
     return data
 
 

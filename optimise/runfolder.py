@@ -156,7 +156,7 @@ def load_run(run_dir) -> dict:
     run_dir = Path(run_dir)
     path = run_dir / FRONT_FILE
     if not run_dir.is_dir():
-        raise RunError(f"no run folder {run_dir}; start one with a search")
+        raise RunError(f"no run folder {str(run_dir)!r}; start one with `stillroom search`")
     if not path.exists():
         raise RunError(
             f"{run_dir} has no {FRONT_FILE} yet; a search writes it as soon as it starts"
