@@ -67,6 +67,7 @@ from .steps import (
     StepCircuit,
     double_selection,
     prepare,
+    run_joint,
     run_step,
     two_to_one,
 )
@@ -127,6 +128,7 @@ __all__ = [
     "rotate",
     "rotation_index",
     "round_code",
+    "run_joint",
     "run_step",
     "start_chains",
     "store",

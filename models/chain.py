@@ -31,12 +31,11 @@ from .evaluate import (
     made_joint,
     memory_rates,
     raw_pair_figures,
-    run_joint,
     twirl,
     wait_for,
 )
 from .recipes import Recipe, Round
-from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_step
+from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_joint, run_step
 
 
 def _linear_rounds() -> tuple[Round, ...]:
@@ -283,7 +282,7 @@ def advance_every(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.nd
             if r.selection == "single":
                 p, k = run_step(TWO_TO_ONE, (stored, s_bell), r.rotations, **params)
             else:
-                p, k = run_joint(DOUBLE_SELECTION, joint, r.rotations, noise)
+                p, k = run_joint(DOUBLE_SELECTION, joint, r.rotations, **params)
             success[lo : lo + len(part), c] = p
             kept[lo : lo + len(part), c] = k
     rows = chains.take(np.repeat(np.arange(n_states), n_codes))
@@ -357,7 +356,7 @@ def _step_rows(rows, row_codes, bell, s_bell, s_laplace, noise, success, kept):
                 )
             else:
                 success[group], kept[group] = run_joint(
-                    DOUBLE_SELECTION, joint, (rot[:, 0], rot[:, 1], rot[:, 2]), noise
+                    DOUBLE_SELECTION, joint, (rot[:, 0], rot[:, 1], rot[:, 2]), **params
                 )
             continue
         bounds = np.append(starts, group.size)
@@ -371,7 +370,7 @@ def _step_rows(rows, row_codes, bell, s_bell, s_laplace, noise, success, kept):
                 )
             else:
                 success[target], kept[target] = run_joint(
-                    DOUBLE_SELECTION, joint[lo:hi], r.rotations, noise
+                    DOUBLE_SELECTION, joint[lo:hi], r.rotations, **params
                 )
 
 

@@ -5,7 +5,7 @@ Model (all of it exact for the Bell-diagonal model unless marked *approximation*
 - Steps: the compiled circuits of :mod:`models.steps` (``TWO_TO_ONE`` through
   :func:`models.steps.run_step`; ``DOUBLE_SELECTION`` through its compiled map
   :attr:`models.steps.StepCircuit.terms` on the joint input, see
-  :func:`run_joint`, because waiting correlates its inputs) with the profile's
+  :func:`models.steps.run_joint`, because waiting correlates its inputs) with the profile's
   :class:`models.noise.NodeNoise`.
 - Re-twirl (``~``): a random bilateral Clifford applied as one gate, drawn from
   a set (such as the three cyclic relabellings ``Z``, ``y``, ``x``) that makes a
@@ -67,12 +67,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .noise import check_error, depolarize, store_with_decays
+from .noise import depolarize, store_with_decays
 from .notation import as_recipe, canonical
 from .recipes import Recipe, Round, making_order, memory_needed
-from .rotations import SOURCES
 from .states import twirl_to_werner
-from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_step
+from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_joint, run_step
 
 
 def memory_rates(noise) -> np.ndarray:
@@ -174,65 +173,6 @@ def shared_wait_joint(first, second, laplace_middle, laplace_last) -> np.ndarray
     return np.einsum("...ia,...ib->...ab", decay_parts(first), inner)
 
 
-def run_joint(circuit, joint, rotations, noise) -> tuple[np.ndarray, np.ndarray]:
-    """A step on correlated inputs, given their joint Bell weights.
-
-    Parameters
-    ----------
-    circuit : StepCircuit
-    joint : ndarray, shape (N, 4, ..., 4), one axis per pair (kept pair first)
-        Joint weights of the inputs, each row summing to 1.
-    rotations : sequence of ``circuit.n_pairs`` ints or (N,) int arrays
-        Bilateral rotation of each input (the identity adds no noise).
-    noise : NodeNoise
-
-    Returns
-    -------
-    success : (N,), kept : (N, 4), as :func:`models.steps.run_step`.
-
-    Uses the circuit's compiled map :attr:`models.steps.StepCircuit.terms`
-    directly, since :func:`models.steps.run_step` takes independent inputs.
-    """
-    n_pairs = circuit.n_pairs
-    j = np.asarray(joint, dtype=float)
-    n = j.shape[0]
-    survival = noise.single_qubit**2
-    for axis, r in enumerate(rotations, start=1):
-        r = np.asarray(r, dtype=np.intp)
-        if r.ndim == 0:
-            if r == 0:
-                continue
-            j = np.take(j, SOURCES[r], axis=axis)
-            s2 = survival
-        else:
-            # per-row rotations: gather along this pair's axis row by row
-            shape = [n] + [1] * n_pairs
-            shape[axis] = 4
-            j = np.take_along_axis(j, SOURCES[r].reshape(shape), axis=axis)
-            s2 = np.where(r == 0, 1.0, survival).reshape([n] + [1] * n_pairs)
-        marginal = j.sum(axis=axis, keepdims=True)
-        j = s2 * j + (1.0 - s2) * 0.25 * marginal
-    flat = j.reshape(n, 4**n_pairs)
-    terms = circuit.terms
-    n_failed = terms.shape[0] - 1
-    n_checks = len(circuit.checks)
-    s = noise.two_qubit**2
-    q = float(check_error(noise.measurement))
-    patterns = np.arange(2**n_checks)
-    flips = np.array([bin(m).count("1") for m in patterns])
-    check_weights = q**flips * (1.0 - q) ** (n_checks - flips)
-    # fold gate and check weights into one matrix: joint -> unnormalised kept weights
-    matrix = 0.0
-    for k in range(n_failed + 1):
-        term = terms[k].reshape(4**n_pairs, 4, 2**n_checks) @ check_weights
-        matrix = matrix + s ** (n_failed - k) * (1.0 - s) ** k * term
-    unnormalised = flat @ matrix
-    success = unnormalised.sum(axis=-1)
-    ok = success > 0
-    kept = np.where(ok[:, None], unnormalised / np.where(ok, success, 1.0)[:, None], 0.25)
-    return success, kept
-
-
 def made_joint(first, second, third, laplace_second, laplace_third, order) -> np.ndarray:
     """Joint weights, by role, of three inputs made one after another, shape (N, 4, 4, 4).
 
@@ -320,7 +260,14 @@ def _step(r: Round, inputs: list[_Product], profile) -> tuple[_Product, float]:
         )
     else:
         joint = made_joint(*(c.bell[None] for c in made), made[1].laplace, made[2].laplace, order)
-        success, kept = run_joint(circuit, joint, r.rotations, noise)
+        success, kept = run_joint(
+            circuit,
+            joint,
+            r.rotations,
+            two_qubit=noise.two_qubit,
+            single_qubit=noise.single_qubit,
+            measurement=noise.measurement,
+        )
     p = float(success[0])
     exchange = np.exp(-a * delay)
     out = wait_for(kept[0], exchange)

@@ -311,23 +311,97 @@ def _power(x, k: int):
     return result
 
 
-def _evaluate_chunk(circuit, inputs, rotations, *, s, q, p1, success, kept):
-    """One chunk of :func:`run_step`, written into ``success`` (n,) and ``kept`` (4, n)."""
-    n = success.shape[0]
-    columns = [_prepare_columns(p, r, p1, n) for p, r in zip(inputs, rotations, strict=True)]
-    plan = circuit.plan
-    n_failed = len(plan) - 1
+def _term_weights(circuit: StepCircuit, s, q):
+    """``weights[k][m]``: probability that exactly k CNOTs failed (both nodes' gates
+    perfect with probability ``s``) and the reported parities differ from the
+    true ones by pattern m (each check wrong with probability ``q``)."""
+    n_failed = len(circuit.cnots)
     n_checks = len(circuit.checks)
     # integer powers by repeated products: np.power on arrays is far slower
     check_weights = [
         _power(q, bin(m).count("1")) * _power(1.0 - q, n_checks - bin(m).count("1"))
         for m in range(2**n_checks)
     ]
+    return [
+        [_power(s, n_failed - k) * _power(1.0 - s, k) * w for w in check_weights]
+        for k in range(n_failed + 1)
+    ]
+
+
+def _normalise(unnormalised, success, kept):
+    """Success probability (n,) and kept pair (4, n) from the four unnormalised kept weights."""
+    success[:] = unnormalised[0] + unnormalised[1] + unnormalised[2] + unnormalised[3]
+    safe = success > 0
+    scale = 1.0 / np.where(safe, success, 1.0)
+    for o in range(4):
+        np.multiply(unnormalised[o], scale, out=kept[o])
+    if not safe.all():
+        kept[:, ~safe] = 0.25
+
+
+def run_joint(circuit: StepCircuit, joint, rotations, *, two_qubit, single_qubit, measurement):
+    """A step on correlated inputs, given their joint Bell weights.
+
+    :func:`run_step` takes independent inputs; memory waits shared by two
+    stored pairs correlate them, so this takes the joint weights instead.
+
+    Parameters
+    ----------
+    circuit : StepCircuit
+    joint : ndarray, shape (N, 4, ..., 4), one axis per pair (kept pair first)
+        Joint weights of the inputs, each row summing to 1.
+    rotations : sequence of ``circuit.n_pairs`` ints or (N,) int arrays
+        Bilateral rotation of each input (the identity adds no noise).
+    two_qubit, single_qubit, measurement : float
+        Noise parameters (1 is perfect).
+
+    Returns
+    -------
+    success : (N,), kept : (N, 4), as :func:`run_step`.
+    """
+    n_pairs = circuit.n_pairs
+    j = np.asarray(joint, dtype=float)
+    n = j.shape[0]
+    survival = single_qubit**2
+    for axis, r in enumerate(rotations, start=1):
+        r = np.asarray(r, dtype=np.intp)
+        if r.ndim == 0:
+            if r == IDENTITY:
+                continue
+            j = np.take(j, SOURCES[r], axis=axis)
+            s2 = survival
+        else:
+            # per-row rotations: gather along this pair's axis row by row
+            shape = [n] + [1] * n_pairs
+            shape[axis] = 4
+            j = np.take_along_axis(j, SOURCES[r].reshape(shape), axis=axis)
+            s2 = np.where(r == IDENTITY, 1.0, survival).reshape([n] + [1] * n_pairs)
+        # depolarising one pair of a joint distribution: its label becomes uniform
+        marginal = j.sum(axis=axis, keepdims=True)
+        j = s2 * j + (1.0 - s2) * 0.25 * marginal
+    flat = j.reshape(n, 4**n_pairs)
+    term_weights = _term_weights(circuit, two_qubit**2, float(check_error(measurement)))
+    unnormalised = [0.0] * 4
+    for term, weights in zip(circuit.terms, term_weights, strict=True):
+        grouped = (flat @ term).reshape(n, 4, -1)
+        for o in range(4):
+            for m, w in enumerate(weights):
+                unnormalised[o] = unnormalised[o] + w * grouped[:, o, m]
+    success = np.empty(n)
+    kept = np.empty((4, n))
+    _normalise(unnormalised, success, kept)
+    return success, kept.T
+
+
+def _evaluate_chunk(circuit, inputs, rotations, *, s, q, p1, success, kept):
+    """One chunk of :func:`run_step`, written into ``success`` (n,) and ``kept`` (4, n)."""
+    n = success.shape[0]
+    columns = [_prepare_columns(p, r, p1, n) for p, r in zip(inputs, rotations, strict=True)]
+    plan = circuit.plan
+    term_weights = _term_weights(circuit, s, q)
     joint = None
     unnormalised = [0.0] * 4
-    for k, (kind, data) in enumerate(plan):
-        gate_weight = _power(s, n_failed - k) * _power(1.0 - s, k)
-        weights = [gate_weight * w for w in check_weights]
+    for (kind, data), weights in zip(plan, term_weights, strict=True):
         if kind == "constant":
             # inputs are normalised, so a term that forgets its input is a constant
             for o in range(4):
@@ -344,13 +418,7 @@ def _evaluate_chunk(circuit, inputs, rotations, *, s, q, p1, success, kept):
         for o in range(4):
             for m, w in enumerate(weights):
                 unnormalised[o] = unnormalised[o] + w * grouped[o][m]
-    success[:] = unnormalised[0] + unnormalised[1] + unnormalised[2] + unnormalised[3]
-    safe = success > 0
-    scale = 1.0 / np.where(safe, success, 1.0)
-    for o in range(4):
-        np.multiply(unnormalised[o], scale, out=kept[o])
-    if not safe.all():
-        kept[:, ~safe] = 0.25
+    _normalise(unnormalised, success, kept)
 
 
 def two_to_one(
