@@ -27,11 +27,9 @@ from itertools import product
 import numpy as np
 
 from .evaluate import (
-    attempt_laplace,
+    finish_step,
     made_joint,
-    memory_rates,
     raw_pair_figures,
-    twirl,
     wait_for,
 )
 from .recipes import Recipe, Round
@@ -306,23 +304,19 @@ def _sacrificed(chains: ChainBatch, same, profile) -> dict:
 
 def _finish(chains, codes, s, success, kept, profile) -> ChainBatch:
     """Exchange wait, re-twirl, costs, memory, times and Laplace transforms after the steps."""
-    noise = profile.noise
-    delay = profile.classical_delay_s
     n_sacrificed = np.where(CODE_DOUBLE[codes], 2, 1)
     # the kept pair needs at least as much memory as a sacrificed one, so the
     # best order makes it first, then the sacrificed pairs in order
     memory = np.maximum(chains.memory, s["memory"] + n_sacrificed)
-    exchange = np.exp(-memory_rates(noise) * delay)
-    out = wait_for(kept, exchange)
-    twirled = CODE_TWIRL[codes]
-    if twirled.any():
-        out[twirled] = twirl(out[twirled], noise.single_qubit)
-    ok = success > 0
-    safe = np.where(ok, success, 1.0)
-    cost = np.where(ok, (chains.raw_pairs + n_sacrificed * s["cost"]) / safe, np.inf)
-    time_s = np.where(ok, (chains.time_s + n_sacrificed * s["time_s"] + delay) / safe, np.inf)
-    attempt = chains.laplace * s["laplace"] ** n_sacrificed[:, None] * exchange
-    laplace = attempt_laplace(success[:, None], attempt)
+    out, cost, time_s, laplace = finish_step(
+        kept,
+        success,
+        twirled=CODE_TWIRL[codes],
+        inputs_cost=chains.raw_pairs + n_sacrificed * s["cost"],
+        inputs_time_s=chains.time_s + n_sacrificed * s["time_s"],
+        inputs_laplace=chains.laplace * s["laplace"] ** n_sacrificed[:, None],
+        profile=profile,
+    )
     return ChainBatch(out, cost, memory.astype(np.int64), chains.rounds + 1, time_s, laplace)
 
 

@@ -219,6 +219,42 @@ def attempt_laplace(success, attempt_laplace_value):
     return np.where(p > 0, out, 0.0)
 
 
+def finish_step(kept, success, *, twirled, inputs_cost, inputs_time_s, inputs_laplace, profile):
+    """A step's output and its costs once the step has run, for N steps at once.
+
+    The kept pair waits the one-way classical delay D during the exchange of
+    outcomes, then is re-twirled where ``twirled``; a failed step discards all
+    inputs, so ``cost = sum of input costs / P`` and, by Wald's identity,
+    ``time = (sum of input times + D) / P``; the production time's Laplace
+    transform follows :func:`attempt_laplace`.
+
+    Parameters
+    ----------
+    kept : (N, 4) kept pairs given success; success : (N,)
+    twirled : bool or (N,) bool
+    inputs_cost, inputs_time_s : (N,) sums over the step's inputs (raw pairs, seconds)
+    inputs_laplace : (N, 10) product of the inputs' Laplace transforms
+    profile : models.Profile
+
+    Returns
+    -------
+    out (N, 4), cost (N,), time_s (N,), laplace (N, 10); cost and time are inf where P = 0.
+    """
+    noise = profile.noise
+    delay = profile.classical_delay_s
+    exchange = np.exp(-memory_rates(noise) * delay)
+    out = wait_for(kept, exchange)
+    twirled = np.broadcast_to(twirled, success.shape)
+    if twirled.any():
+        out[twirled] = twirl(out[twirled], noise.single_qubit)
+    ok = success > 0
+    safe = np.where(ok, success, 1.0)
+    cost = np.where(ok, inputs_cost / safe, np.inf)
+    time_s = np.where(ok, (inputs_time_s + delay) / safe, np.inf)
+    laplace = attempt_laplace(success[:, None], inputs_laplace * exchange)
+    return out, cost, time_s, laplace
+
+
 @dataclass(frozen=True)
 class _Product:
     """Figures of the pair a (sub-)recipe makes, as needed by the step that uses it."""
@@ -240,8 +276,6 @@ def _raw(profile) -> _Product:
 
 def _step(r: Round, inputs: list[_Product], profile) -> tuple[_Product, float]:
     noise = profile.noise
-    delay = profile.classical_delay_s
-    a = memory_rates(noise)
     memories = [c.memory for c in inputs]
     order = making_order(memories)
     circuit = TWO_TO_ONE if r.selection == "single" else DOUBLE_SELECTION
@@ -269,26 +303,22 @@ def _step(r: Round, inputs: list[_Product], profile) -> tuple[_Product, float]:
             measurement=noise.measurement,
         )
     p = float(success[0])
-    exchange = np.exp(-a * delay)
-    out = wait_for(kept[0], exchange)
-    if r.twirl:
-        out = twirl(out, noise.single_qubit)
-    attempt_time = sum(c.time_s for c in inputs) + delay
-    attempt = exchange.copy()
-    for c in inputs:
-        attempt = attempt * c.laplace
-    if p > 0:
-        cost = sum(c.cost for c in inputs) / p
-        time_s = attempt_time / p
-    else:
-        cost = time_s = math.inf
+    out, cost, time_s, laplace = finish_step(
+        kept,
+        success,
+        twirled=r.twirl,
+        inputs_cost=np.array([sum(c.cost for c in inputs)]),
+        inputs_time_s=np.array([sum(c.time_s for c in inputs)]),
+        inputs_laplace=np.prod([c.laplace for c in inputs], axis=0)[None],
+        profile=profile,
+    )
     product = _Product(
-        out,
-        cost,
+        out[0],
+        float(cost[0]),
         memory_needed(memories),
         1 + max(c.rounds for c in inputs),
-        time_s,
-        attempt_laplace(p, attempt),
+        float(time_s[0]),
+        laplace[0],
     )
     return product, p
 
