@@ -32,13 +32,15 @@ from .evaluate import (
     raw_pair_figures,
     wait_for,
 )
+from .kinds import STEP_KINDS
 from .recipes import Recipe, Round
 from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_joint, run_step
 
 
 def _linear_rounds() -> tuple[Round, ...]:
     rounds = []
-    for selection, n in (("single", 2), ("double", 3)):
+    for selection, kind in STEP_KINDS.items():
+        n = kind.n_inputs
         for twirled in (False, True):
             for sacrificed in ("raw", "same"):
                 for rotations in product(range(6), repeat=n):

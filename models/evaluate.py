@@ -71,7 +71,8 @@ from .noise import depolarize, store_with_decays
 from .notation import as_recipe, canonical
 from .recipes import Recipe, Round, making_order, memory_needed
 from .states import twirl_to_werner
-from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_joint, run_step
+from .kinds import STEP_KINDS
+from .steps import run_joint, run_step
 
 
 def memory_rates(noise) -> np.ndarray:
@@ -278,7 +279,7 @@ def _step(r: Round, inputs: list[_Product], profile) -> tuple[_Product, float]:
     noise = profile.noise
     memories = [c.memory for c in inputs]
     order = making_order(memories)
-    circuit = TWO_TO_ONE if r.selection == "single" else DOUBLE_SELECTION
+    circuit = STEP_KINDS[r.selection].circuit
     made = [inputs[i] for i in order]
     if len(inputs) == 2:
         stored = [None, None]

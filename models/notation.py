@@ -98,17 +98,17 @@ from __future__ import annotations
 from dataclasses import replace
 from functools import lru_cache
 
-from .recipes import N_INPUTS, Recipe, Round, making_order
+from .kinds import STEP_KINDS
+from .recipes import Recipe, Round, making_order
 from .rotations import COMPOSE, ROTATION_NAMES
 
-_KIND = {
-    ("single", "raw"): "p",
-    ("single", "same"): "s",
-    ("single", "sub"): "p",
-    ("double", "raw"): "dp",
-    ("double", "same"): "ds",
-    ("double", "sub"): "dp",
-}
+# notation token -> (selection, pumping); longest first, so that "dp" is not read as "d" + "p"
+_TOKENS = sorted(
+    [(k.pump_token, (k.selection, True)) for k in STEP_KINDS.values()]
+    + [(k.same_token, (k.selection, False)) for k in STEP_KINDS.values()],
+    key=lambda item: -len(item[0]),
+)
+_TOKEN_LIST = ", ".join(repr(token) for token, _ in sorted(_TOKENS, key=lambda t: (len(t[0]), t)))
 _ROT_LIST = ", ".join(ROTATION_NAMES)
 
 
@@ -160,23 +160,36 @@ class _Parser:
                 continue
             return Recipe(tuple(rounds))
 
+    def _fail_round_token(self, start: int):
+        """Fail at the first character that no round token can continue."""
+        read = 0
+        while any(
+            len(t) > read and self.text.startswith(t[: read + 1], start) for t, _ in _TOKENS
+        ):
+            read += 1
+        if read == 0:
+            self.fail(f"a round: one of {_TOKEN_LIST} (or 'raw' for the raw pair alone)")
+        head = self.text[start : start + read]
+        nexts = sorted({t[read] for t, _ in _TOKENS if t.startswith(head) and len(t) > read})
+        names = ", ".join(
+            f"{t}: {STEP_KINDS[sel].title}{'' if pump else ', symmetric'}"
+            for t, (sel, pump) in sorted(_TOKENS)
+            if t.startswith(head) and len(t) > read
+        )
+        self.fail(
+            " or ".join(repr(c) for c in nexts) + f" after {head!r} ({names})", start + read
+        )
+
     def round(self, closing: str) -> list[Round]:
         start = self.pos
-        ch = self.peek()
-        if ch == "d":
-            self.pos += 1
-            ch = self.peek()
-            if ch not in ("p", "s"):
-                self.fail("'p' or 's' after 'd' (dp: double selection pumping, ds: symmetric)")
-            selection = "double"
-        elif ch in ("p", "s"):
-            selection = "single"
+        for token, (selection, pumping) in _TOKENS:
+            if self.text.startswith(token, start):
+                break
         else:
-            self.fail("a round: 'p', 's', 'dp' or 'ds' (or 'raw' for the raw pair alone)")
-        pumping = ch == "p"
-        kind = self.text[start : self.pos + 1]
-        self.pos += 1
-        n_inputs = N_INPUTS[selection]
+            self._fail_round_token(start)
+        kind = token
+        self.pos += len(token)
+        n_inputs = STEP_KINDS[selection].n_inputs
         letters_at = self.pos
         letters = []
         while self.peek() and self.peek() in ROTATION_NAMES:
@@ -293,7 +306,8 @@ def as_recipe(recipe) -> Recipe:
 
 
 def _format_round(r: Round) -> str:
-    kind = _KIND[(r.selection, r.sacrificed)]
+    step = STEP_KINDS[r.selection]
+    kind = step.same_token if r.sacrificed == "same" else step.pump_token
     rot = r.rotations
     letters = (
         ROTATION_NAMES[rot[0]] if len(set(rot)) == 1 else "".join(ROTATION_NAMES[k] for k in rot)

@@ -28,12 +28,10 @@ from dataclasses import dataclass
 from functools import cached_property
 from numbers import Integral
 
+from .kinds import N_INPUTS, SELECTIONS
 from .rotations import ROTATION_NAMES
 
-SELECTIONS = ("single", "double")
 SACRIFICED = ("raw", "same", "sub")
-# inputs per step, kept pair included
-N_INPUTS = {"single": 2, "double": 3}
 
 
 def _rotation_tuple(rotations, n_inputs: int) -> tuple[int, ...]:
