@@ -211,7 +211,7 @@ def baseline_table(baselines, title: str):
 def _table(rows, title: str, first: str, justify: str):
     from rich.table import Table
 
-    from ..labels import fmt_fidelity, fmt_number, fmt_time
+    from ..reports import recipe_cells
 
     table = Table(title=title, title_justify="left", header_style="bold", box=None, pad_edge=False)
     table.add_column(first, justify=justify)
@@ -219,16 +219,7 @@ def _table(rows, title: str, first: str, justify: str):
     for name in ("fidelity F", "yield", "raw / out", "mem / node", "rounds", "time / out"):
         table.add_column(name, justify="right")
     for label, r in rows:
-        table.add_row(
-            label,
-            r.notation,
-            fmt_fidelity(r.fidelity),
-            fmt_number(r.pair_yield),
-            fmt_number(r.raw_pairs_per_output),
-            str(r.memory_per_node),
-            str(r.rounds),
-            fmt_time(r.time_per_output_s),
-        )
+        table.add_row(label, *recipe_cells(r))  # the cells the report tables show
     return table
 
 
