@@ -51,13 +51,13 @@ from .levels import (
     symmetry_of,
 )
 from .limits import as_limits
-from .objective import check_objectives
+from .objectives import check_objectives
 from .pareto import pareto_mask, quantise, unique_front
 
 PARALLEL_MIN_ROWS = 5_000_000  # rounds before input merging; below this one process is faster
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class ExhaustiveFront:
     """The complete front of the linear recipes up to a depth.
 

@@ -1,81 +1,21 @@
-"""The objective: a trial's recipe evaluated exactly, returned in a fixed objective order."""
+"""The objective: a trial's recipe evaluated exactly, returned in a fixed objective order.
+
+Which objectives exist, and their directions, is :mod:`optimise.objectives`.
+"""
 
 from __future__ import annotations
 
 import math
-import os
-import socket
 
 from models.evaluate import evaluate
 
 from .limits import Limits
+from .objectives import objective_values
+from .processes import worker_identity
 from .samplers import ERROR_ATTR
 from .space import suggest_recipe
 
-# name -> (RecipeResult attribute, maximise?)
-OBJECTIVES = {
-    "fidelity": ("fidelity", True),
-    "yield": ("pair_yield", True),
-    "memory": ("memory_per_node", False),
-    "time": ("time_per_output_s", False),
-}
 WORKER_ATTR = "worker"
-
-
-def check_objectives(objectives) -> tuple[str, ...]:
-    """Validate an objective list: fidelity and yield, optionally memory and time."""
-    objectives = tuple(objectives)
-    unknown = [o for o in objectives if o not in OBJECTIVES]
-    if unknown:
-        raise ValueError(f"objectives: {unknown[0]!r} is not one of {', '.join(OBJECTIVES)}")
-    if len(set(objectives)) != len(objectives):
-        raise ValueError(f"objectives = {objectives!r} names an objective twice")
-    if "fidelity" not in objectives or "yield" not in objectives:
-        raise ValueError(
-            f"objectives = {objectives!r} must include 'fidelity' and 'yield' (the trade-off "
-            "searched); 'memory' and 'time' may be added"
-        )
-    return objectives
-
-
-def directions(objectives) -> list[str]:
-    """optuna directions for an objective list."""
-    return ["maximize" if OBJECTIVES[o][1] else "minimize" for o in objectives]
-
-
-def objective_values(result, objectives) -> tuple[float, ...]:
-    """The figures of a :class:`models.evaluate.RecipeResult` in objective order."""
-    return tuple(float(getattr(result, OBJECTIVES[o][0])) for o in objectives)
-
-
-def values_from_dict(entry: dict, objectives) -> tuple[float, ...]:
-    """The same from ``RecipeResult.to_dict()`` (``None`` costs and times are infinite)."""
-    keys = {
-        "fidelity": "fidelity",
-        "yield": "yield",
-        "memory": "memory_per_node",
-        "time": "time_per_output_s",
-    }
-    out = []
-    for o in objectives:
-        v = entry[keys[o]]
-        out.append(math.inf if v is None else float(v))
-    return tuple(out)
-
-
-def worker_identity() -> dict:
-    """Host and process of this worker, so a resume can tell a dead worker's trials."""
-    return {"host": socket.gethostname(), "pid": os.getpid(), "start": process_start(os.getpid())}
-
-
-def process_start(pid: int):
-    """Start time of a process in clock ticks since boot (Linux), or None elsewhere."""
-    try:
-        with open(f"/proc/{pid}/stat", encoding="ascii") as handle:
-            fields = handle.read().rsplit(")", 1)[1].split()
-        return int(fields[19])
-    except (OSError, IndexError, ValueError):
-        return None
 
 
 class Objective:

@@ -12,6 +12,7 @@ import math
 from pathlib import Path
 
 from .files import write_atomic
+from .labels import baseline_title
 
 FIGURE_INCHES = (7.5, 4.5)
 PNG_DPI = 200
@@ -85,21 +86,22 @@ def _metadata(ext: str) -> dict:
     return {"Software": "stillroom"}
 
 
-def front_figure(data: dict):
-    """The Pareto front of a run (``front.json`` content) as a matplotlib figure."""
+def front_figure(front):
+    """The Pareto front of a run (an :class:`optimise.front.Front`) as a matplotlib figure."""
     from models import hashing_yield
 
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=FIGURE_INCHES, layout="constrained")
     fig.patch.set_facecolor("white")
     _style(ax)
-    front = sorted(data["front"], key=lambda e: e["fidelity"])
-    raw = data["profile"]["raw_pair"]
-    ys_all = [e["yield"] for e in front] + [e["yield"] for e in data["baselines"]] + [1.0]
+    points = sorted(front.results, key=lambda r: r.fidelity)
+    raw = front.profile["raw_pair"]
+    ys_all = [r.pair_yield for r in points] + [b.result.pair_yield for b in front.baselines]
+    ys_all.append(1.0)
 
-    if front:
-        fs = [e["fidelity"] for e in front]
-        ys = [e["yield"] for e in front]
+    if points:
+        fs = [r.fidelity for r in points]
+        ys = [r.pair_yield for r in points]
         ax.step(fs, ys, where="pre", color=FRONT, linewidth=1.2, alpha=0.6, zorder=2)
         ax.scatter(
             fs,
@@ -109,13 +111,13 @@ def front_figure(data: dict):
             edgecolor="white",
             linewidth=0.8,
             zorder=4,
-            label=f"Pareto front ({len(front)} recipes)",
+            label=f"Pareto front ({len(points)} recipes)",
         )
-        if len(front) <= 12:
-            for e in front:
+        if len(points) <= 12:
+            for r in points:
                 ax.annotate(
-                    e["recipe"],
-                    (e["fidelity"], e["yield"]),
+                    r.notation,
+                    (r.fidelity, r.pair_yield),
                     xytext=(4, 4),
                     textcoords="offset points",
                     fontsize=6.5,
@@ -123,14 +125,14 @@ def front_figure(data: dict):
                     zorder=5,
                 )
 
-    families: dict[str, list[dict]] = {}
-    for e in data["baselines"]:
-        families.setdefault(e.get("baseline", "baseline"), []).append(e)
-    for (name, entries), (colour, marker) in zip(families.items(), _cycle(), strict=False):
-        entries = sorted(entries, key=lambda e: e.get("depth") or e["rounds"])
+    families: dict[str, list] = {}
+    for b in front.baselines:
+        families.setdefault(b.name or "baseline", []).append(b)
+    for (name, members), (colour, marker) in zip(families.items(), _cycle(), strict=False):
+        members = sorted(members, key=lambda b: b.depth or b.result.rounds)
         ax.plot(
-            [e["fidelity"] for e in entries],
-            [e["yield"] for e in entries],
+            [b.result.fidelity for b in members],
+            [b.result.pair_yield for b in members],
             linestyle=(0, (2, 2)),
             linewidth=0.8,
             color=colour,
@@ -139,7 +141,7 @@ def front_figure(data: dict):
             markerfacecolor="white",
             markeredgewidth=1.1,
             zorder=3,
-            label=_title(name),
+            label=baseline_title(name),
         )
 
     ax.scatter(
@@ -171,11 +173,11 @@ def front_figure(data: dict):
         ax.set_yscale("log")
     ax.set_xlabel(FIDELITY_LABEL, color=INK, fontsize=9)
     ax.set_ylabel(YIELD_LABEL, color=INK, fontsize=9)
-    name = data["profile"].get("name", "profile")
-    if data.get("complete"):
+    name = front.profile_name
+    if front.complete:
         status = "complete for the searched space"
-    elif data.get("complete_depth"):
-        status = f"complete to depth {data['complete_depth']}, sampled beyond"
+    elif front.complete_depth:
+        status = f"complete to depth {front.complete_depth}, sampled beyond"
     else:
         status = "sampled"
     ax.set_title(f"{name}: fidelity against yield ({status})", color=INK, fontsize=10, loc="left")
@@ -188,18 +190,12 @@ def _cycle():
         yield from BASELINE_STYLES
 
 
-def _title(name: str) -> str:
-    from .reports import SHORT_NAMES
-
-    return SHORT_NAMES.get(name, name)
-
-
-def write_front_plots(data: dict, run_dir) -> list[Path]:
-    """Write ``front.png`` and ``front.svg`` into ``run_dir``; returns their paths."""
+def write_front_plots(front, stem) -> list[Path]:
+    """Write ``<stem>.png`` and ``<stem>.svg`` (a run's ``front``); returns their paths."""
     plt = _pyplot()
-    fig = front_figure(data)
+    fig = front_figure(front)
     try:
-        return _save(fig, Path(run_dir) / "front")
+        return _save(fig, Path(stem))
     finally:
         plt.close(fig)
 

@@ -52,7 +52,7 @@ from models import NodeNoise, hashing_yield, werner
 from models.profile import FIBRE_SPEED_KM_S, Profile
 from models.states import BELL_NAMES
 
-from .errors import InputError
+from .errors import InputError, user_input
 
 DEMO_RESOURCE = "demo.toml"
 
@@ -311,7 +311,7 @@ def profile_from_data(data: dict, source: str = "<profile>") -> Profile:
             f"{_show(2 * values['t1_s'])}; amplitude damping alone limits T2 to 2 T1"
         )
     name = data.get("name") or (Path(source).stem if not source.startswith("<") else "profile")
-    try:
+    with user_input(source):  # the model's own checks, should ours miss one
         return Profile(
             raw_pair=raw,
             noise=NodeNoise(
@@ -325,8 +325,6 @@ def profile_from_data(data: dict, source: str = "<profile>") -> Profile:
             pair_rate_hz=values["pair_rate_hz"],
             name=name,
         )
-    except ValueError as error:  # the model's own checks, should ours miss one
-        raise InputError(f"{source}: {error}") from None
 
 
 def parse_profile(text: str, source: str = "<profile>") -> Profile:
@@ -427,7 +425,7 @@ def with_parameter(profile: Profile, name: str, value: float) -> Profile:
         )
     spec = PARAMETERS[name]
     value = spec.check(value, "sweep")
-    try:
+    with user_input(f"sweep at {source}"):
         if name == "werner_fidelity":
             if value <= 0.5:
                 raise InputError(
@@ -440,10 +438,6 @@ def with_parameter(profile: Profile, name: str, value: float) -> Profile:
                 profile, noise=dataclasses.replace(profile.noise, **{name: value})
             )
         return dataclasses.replace(profile, **{name: value})
-    except ValueError as error:
-        if isinstance(error, InputError):
-            raise
-        raise InputError(f"sweep at {source}: {error}") from None
 
 
 def describe(profile: Profile) -> list[tuple[str, str, str]]:

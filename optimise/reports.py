@@ -1,6 +1,6 @@
-"""Report files of a run folder, written from its ``front.json``.
+"""Report files of a run folder, written from its :class:`optimise.front.Front`.
 
-:func:`write_reports` turns ``runs/<name>/front.json`` into
+:func:`write_reports` turns the front of ``runs/<name>/`` (its ``front.json``) into
 
 ``front.csv``
     one row per recipe, front first, then baselines; columns :data:`CSV_COLUMNS`
@@ -26,13 +26,10 @@ from __future__ import annotations
 
 import csv
 import io
-import math
 from datetime import UTC, datetime
 from pathlib import Path
 
-from .errors import RunError
-from .files import write_atomic, write_json_atomic
-from .runfolder import load_run
+from .labels import baseline_label, fmt_fidelity, fmt_number, fmt_time
 
 ASSUMPTIONS = (
     "Model assumptions: every pair is Bell-diagonal; gate noise is depolarising (Pauli) "
@@ -83,21 +80,10 @@ CSV_COLUMNS = (
     "success_probabilities",
 )
 REPORT_FILES = ("front.csv", "recipes.json", "table.tex", "table.md", "front.png", "front.svg")
-TABLE_FORMATS = {"md": "table.md", "tex": "table.tex", "csv": "front.csv"}
-
 
 PLOT_MISSING = "matplotlib is not installed, so no plots were drawn (pip install 'stillroom[plot]')"
-
-
-def load_front(run_dir) -> dict:
-    """The parsed ``front.json`` of a run folder, or :class:`RunError` saying why not."""
-    data = load_run(run_dir)
-    for key in ("profile", "front", "baselines"):
-        if key not in data:
-            raise RunError(
-                f"{run_dir}/front.json has no {key!r} key; it was not written by stillroom search"
-            )
-    return data
+# what each table format is called on the command line, and its file
+TABLE_FORMATS = {"md": "table.md", "tex": "table.tex", "csv": "front.csv"}
 
 
 def raw_hashing_yield(profile: dict) -> float:
@@ -107,121 +93,76 @@ def raw_hashing_yield(profile: dict) -> float:
     return float(hashing_yield(profile["raw_pair"]))
 
 
-# short names for the tables; the baseline's full title and source are in models.baselines
-SHORT_NAMES = {
-    "bbpssw": "BBPSSW",
-    "dejmps": "DEJMPS",
-    "alternating-pumping": "alternating pumping",
-    "double-selection-pumping": "double-selection pumping",
-}
-
-
-def baseline_label(entry: dict) -> str:
-    name = entry.get("baseline", "")
-    title = SHORT_NAMES.get(name, name)
-    depth = entry.get("depth")
-    return f"{title}, depth {depth}" if depth is not None else title
-
-
-# ----------------------------------------------------------------------------- numbers
-
-
-def fmt_fidelity(f: float) -> str:
-    return f"{f:.6f}"
-
-
-def fmt_number(x: float | None, digits: int = 4) -> str:
-    """``digits`` significant digits; None (how JSON stores an infinite cost) is ``inf``."""
-    if x is None or math.isinf(x):
-        return "inf"
-    return f"{x:.{digits}g}"
-
-
-def fmt_time(t: float | None) -> str:
-    """Seconds with a unit people read at a glance: ``1.25 ms``, ``3.4 s``."""
-    if t is None or math.isinf(t):  # None: how JSON stores an infinite time
-        return "inf"
-    if t == 0:
-        return "0 s"
-    for scale, unit in ((1.0, "s"), (1e-3, "ms"), (1e-6, "us"), (1e-9, "ns")):
-        if abs(t) >= scale:
-            return f"{t / scale:.3g} {unit}"
-    return f"{t:.3g} s"
-
-
 # ----------------------------------------------------------------------------- csv
 
 
 def _exact(x) -> str:
-    """A float written so that it reads back exactly; empty for None (infinite)."""
-    return "" if x is None else repr(float(x))
+    """A float written so that it reads back exactly; empty for an infinite cost or time."""
+    return "" if x is None or x == float("inf") else repr(float(x))
 
 
-def csv_rows(data: dict) -> list[dict]:
+def _csv_row(role: str, r, name: str = "", depth="") -> dict:
+    bell = r.bell
+    return {
+        "role": role,
+        "baseline": name,
+        "depth": depth,
+        "recipe": r.notation,
+        "id": r.recipe_id,
+        "fidelity": _exact(r.fidelity),
+        "yield": _exact(r.pair_yield),
+        "raw_pairs_per_output": _exact(r.raw_pairs_per_output),
+        "memory_per_node": r.memory_per_node,
+        "rounds": r.rounds,
+        "time_per_output_s": _exact(r.time_per_output_s),
+        "bell_I": _exact(bell[0]),
+        "bell_X": _exact(bell[1]),
+        "bell_Y": _exact(bell[2]),
+        "bell_Z": _exact(bell[3]),
+        "success_probabilities": ";".join(_exact(p) for p in r.success_probabilities),
+    }
+
+
+def csv_rows(front) -> list[dict]:
     """Rows of ``front.csv``: front recipes, then baselines; keys :data:`CSV_COLUMNS`."""
-    rows = []
-    for role, entries in (("front", data["front"]), ("baseline", data["baselines"])):
-        for entry in entries:
-            bell = entry["bell"]
-            rows.append(
-                {
-                    "role": role,
-                    "baseline": entry.get("baseline", "") if role == "baseline" else "",
-                    "depth": entry.get("depth", entry["rounds"]) if role == "baseline" else "",
-                    "recipe": entry["recipe"],
-                    "id": entry["id"],
-                    "fidelity": _exact(entry["fidelity"]),
-                    "yield": _exact(entry["yield"]),
-                    "raw_pairs_per_output": _exact(entry["raw_pairs_per_output"]),
-                    "memory_per_node": entry["memory_per_node"],
-                    "rounds": entry["rounds"],
-                    "time_per_output_s": _exact(entry["time_per_output_s"]),
-                    "bell_I": _exact(bell[0]),
-                    "bell_X": _exact(bell[1]),
-                    "bell_Y": _exact(bell[2]),
-                    "bell_Z": _exact(bell[3]),
-                    "success_probabilities": ";".join(
-                        _exact(p) for p in entry["success_probabilities"]
-                    ),
-                }
-            )
+    rows = [_csv_row("front", r) for r in front.results]
+    rows += [_csv_row("baseline", b.result, b.name, b.depth) for b in front.baselines]
     return rows
 
 
-def front_csv(data: dict) -> str:
+def front_csv(front) -> str:
     out = io.StringIO()
     writer = csv.DictWriter(out, fieldnames=CSV_COLUMNS, lineterminator="\n")
     writer.writeheader()
-    writer.writerows(csv_rows(data))
+    writer.writerows(csv_rows(front))
     return out.getvalue()
 
 
 # ----------------------------------------------------------------------------- json
 
 
-def recipes_document(data: dict) -> dict:
+def recipes_document(front) -> dict:
     """Content of ``recipes.json`` (schema: ``optimise/schema.json``, kind ``recipes``)."""
-    settings = data.get("settings", {})
     return {
         "kind": "recipes",
-        "stillroom_version": data.get("stillroom_version", _version()),
-        "created": data.get("created"),
-        "updated": data.get("updated"),
+        "stillroom_version": front.stillroom_version or _version(),
+        "created": front.created,
+        "updated": front.updated,
         "reported": _now(),
-        "profile": data["profile"],
-        "raw_hashing_yield": raw_hashing_yield(data["profile"]),
-        "settings": settings,
-        "seed": settings.get("seed"),
-        "searched_space": data.get("searched_space"),
-        "complete_depth": data.get("complete_depth"),
-        "complete": bool(data.get("complete", False)),
-        "n_trials": data.get("n_trials"),
-        "front": [_recipe_only(e) for e in data["front"]],
+        "profile": front.profile,
+        "raw_hashing_yield": raw_hashing_yield(front.profile),
+        "settings": front.settings,
+        "seed": front.seed,
+        "searched_space": front.searched_space,
+        "complete_depth": front.complete_depth,
+        "complete": bool(front.complete),
+        "n_trials": front.n_trials,
+        "front": [_recipe_only(r.to_dict()) for r in front.results],
         "baselines": [
-            {**_recipe_only(e), "baseline": e.get("baseline"), "depth": e.get("depth")}
-            for e in data["baselines"]
+            {**_recipe_only(b.result.to_dict()), "baseline": b.name, "depth": b.depth}
+            for b in front.baselines
         ],
-        "target": data.get("target"),
+        "target": None if front.target is None else front.target.to_dict(),
         "csv_columns": list(CSV_COLUMNS),
         "assumptions": ASSUMPTIONS,
     }
@@ -258,21 +199,23 @@ HEADERS = (
 )
 
 
-def _cells(entry: dict) -> list[str]:
+def recipe_cells(r) -> list[str]:
+    """A recipe's cells under :data:`HEADERS` (after ``#``), as tables write them."""
     return [
-        entry["recipe"],
-        fmt_fidelity(entry["fidelity"]),
-        fmt_number(entry["yield"]),
-        fmt_number(entry["raw_pairs_per_output"]),
-        str(entry["memory_per_node"]),
-        str(entry["rounds"]),
-        fmt_time(entry["time_per_output_s"]),
+        r.notation,
+        fmt_fidelity(r.fidelity),
+        fmt_number(r.pair_yield),
+        fmt_number(r.raw_pairs_per_output),
+        str(r.memory_per_node),
+        str(r.rounds),
+        fmt_time(r.time_per_output_s),
     ]
 
 
-def hashing_sentence(data: dict) -> str:
-    h = raw_hashing_yield(data["profile"])
-    f = data["profile"]["raw_pair"][0]
+def hashing_sentence(profile: dict) -> str:
+    """The raw pair's fidelity and hashing yield, with the source, for every table."""
+    h = raw_hashing_yield(profile)
+    f = profile["raw_pair"][0]
     return (
         f"Raw pair: fidelity {f:.6f}, hashing yield 1 - S(p) = {h:.6f} (Bennett, DiVincenzo, "
         "Smolin and Wootters, PRA 54, 3824 (1996)), the rate with perfect operations as F "
@@ -280,9 +223,9 @@ def hashing_sentence(data: dict) -> str:
     )
 
 
-def _completeness(data: dict) -> str:
-    depth = data.get("complete_depth")
-    n = data.get("n_trials")
+def _completeness(front) -> str:
+    depth = front.complete_depth
+    n = front.n_trials
     parts = []
     if n is not None:
         parts.append(f"{n} trials")
@@ -290,34 +233,34 @@ def _completeness(data: dict) -> str:
         parts.append(f"every linear recipe up to depth {depth} evaluated")
     parts.append(
         "front complete for the searched space"
-        if data.get("complete")
+        if front.complete
         else "front found by sampling: not proven complete"
     )
     return "; ".join(parts) + "."
 
 
-def table_md(data: dict) -> str:
+def table_md(front) -> str:
     """The front and baselines as a Markdown table, ending with :data:`ASSUMPTIONS`."""
-    name = data["profile"].get("name", "profile")
+    name = front.profile_name
     lines = [
         f"# Pareto front: {name}",
         "",
         "| " + " | ".join(h for h, _ in HEADERS) + " |",
         "|" + "|".join(["---:"] + [":---"] + ["---:"] * (len(HEADERS) - 2)) + "|",
     ]
-    for i, entry in enumerate(data["front"], 1):
-        cells = _cells(entry)
+    for i, r in enumerate(front.results, 1):
+        cells = recipe_cells(r)
         cells[0] = f"`{cells[0]}`"
         lines.append("| " + " | ".join([str(i)] + cells) + " |")
-    if data["baselines"]:
+    if front.baselines:
         lines += ["", "Textbook baselines (reference):", ""]
         lines.append("| baseline | " + " | ".join(h for h, _ in HEADERS[1:]) + " |")
         lines.append("|" + "|".join([":---", ":---"] + ["---:"] * (len(HEADERS) - 2)) + "|")
-        for entry in data["baselines"]:
-            cells = _cells(entry)
+        for b in front.baselines:
+            cells = recipe_cells(b.result)
             cells[0] = f"`{cells[0]}`"
-            lines.append("| " + " | ".join([baseline_label(entry)] + cells) + " |")
-    lines += ["", hashing_sentence(data), "", _completeness(data), "", ASSUMPTIONS, ""]
+            lines.append("| " + " | ".join([baseline_label(b.name, b.depth)] + cells) + " |")
+    lines += ["", hashing_sentence(front.profile), "", _completeness(front), "", ASSUMPTIONS, ""]
     return "\n".join(lines)
 
 
@@ -346,13 +289,13 @@ def latex_escape(text: str) -> str:
     return "".join(_LATEX_SPECIAL.get(c, c) for c in text)
 
 
-def table_tex(data: dict) -> str:
+def table_tex(front) -> str:
     """A booktabs table (one row per front recipe, baselines below a rule)."""
-    name = latex_escape(data["profile"].get("name", "profile"))
-    label = "".join(c if c.isalnum() else "-" for c in data["profile"].get("name", "profile"))
+    name = latex_escape(front.profile_name)
+    label = "".join(c if c.isalnum() else "-" for c in front.profile_name)
 
-    def row(first: str, entry: dict) -> str:
-        cells = _cells(entry)
+    def row(first: str, r) -> str:
+        cells = recipe_cells(r)
         cells[0] = r"\texttt{" + latex_escape(cells[0]) + "}"
         cells[1:] = [latex_escape(c) for c in cells[1:]]
         return "  " + " & ".join([first] + cells) + r" \\"
@@ -365,7 +308,7 @@ def table_tex(data: dict) -> str:
         + name
         + r"}: output fidelity $F$, yield (output pairs per raw pair), memory qubits per "
         r"node, rounds and mean time per output pair. "
-        + latex_escape(hashing_sentence(data))
+        + latex_escape(hashing_sentence(front.profile))
         + "}",
         r"  \label{tab:stillroom-" + label + "}",
         r"  \begin{tabular}{rlrrrrrr}",
@@ -373,19 +316,19 @@ def table_tex(data: dict) -> str:
         "  " + " & ".join(t for _, t in HEADERS) + r" \\",
         r"  \midrule",
     ]
-    for i, entry in enumerate(data["front"], 1):
-        lines.append(row(str(i), entry))
-    if data["baselines"]:
+    for i, r in enumerate(front.results, 1):
+        lines.append(row(str(i), r))
+    if front.baselines:
         lines.append(r"  \midrule")
         lines.append(r"  \multicolumn{8}{l}{\emph{textbook baselines (reference)}} \\")
-        for entry in data["baselines"]:
-            lines.append(row(latex_escape(baseline_label(entry)), entry))
+        for b in front.baselines:
+            lines.append(row(latex_escape(baseline_label(b.name, b.depth)), b.result))
     lines += [
         r"  \bottomrule",
         r"  \end{tabular}",
         r"  \par\smallskip",
         r"  \begin{minipage}{0.95\linewidth}\footnotesize",
-        "  " + latex_escape(_completeness(data)) + " " + latex_escape(ASSUMPTIONS),
+        "  " + latex_escape(_completeness(front)) + " " + latex_escape(ASSUMPTIONS),
         r"  \end{minipage}",
         r"\end{table}",
         "",
@@ -397,23 +340,26 @@ def table_tex(data: dict) -> str:
 
 
 def write_reports(run_dir, *, plots: bool = True) -> list[Path]:
-    """(Re)write every report file of a run folder from its ``front.json``.
+    """(Re)write every report file of a run folder from its front.
 
-    Returns the paths written. Each goes through :func:`optimise.files.write_atomic`,
-    so a reader (or a running search) never sees half a file. The plots are left
-    out when ``plots`` is False or matplotlib is not installed.
+    Returns the paths written. Each goes through :func:`optimise.files.write_atomic`
+    (by way of :class:`optimise.run.Run`), so a reader (or a running search) never
+    sees half a file. The plots are left out when ``plots`` is False or matplotlib
+    is not installed.
     """
-    run_dir = Path(run_dir)
-    data = load_front(run_dir)
+    from .run import Run
+
+    run = Run(run_dir)
+    front = run.read_front()
     written = [
-        write_atomic(run_dir / "front.csv", front_csv(data)),
-        write_json_atomic(run_dir / "recipes.json", recipes_document(data)),
-        write_atomic(run_dir / "table.tex", table_tex(data)),
-        write_atomic(run_dir / "table.md", table_md(data)),
+        run.write_text("front.csv", front_csv(front)),
+        run.write_json("recipes.json", recipes_document(front)),
+        run.write_text("table.tex", table_tex(front)),
+        run.write_text("table.md", table_md(front)),
     ]
     if plots:
         from . import plots as plotting
 
         if plotting.available():
-            written += plotting.write_front_plots(data, run_dir)
+            written += plotting.write_front_plots(front, run.path("front"))
     return written

@@ -18,7 +18,6 @@ A trial stays RUNNING in the storage when its process is killed. On resume:
 
 from __future__ import annotations
 
-import os
 import socket
 import warnings
 from datetime import datetime, timedelta
@@ -28,26 +27,14 @@ from optuna.trial import TrialState, create_trial
 
 from models.evaluate import evaluate
 
-from .objective import WORKER_ATTR, objective_values, process_start, trial_attrs, trial_constraints
+from .objective import WORKER_ATTR, trial_attrs, trial_constraints
+from .objectives import objective_values
+from .processes import is_running
 from .samplers import ERROR_ATTR
 from .space import distributions_for, recipe_from_params
 
 REASK_ATTR = "reask_of"
 ORPHAN_GRACE = timedelta(minutes=5)  # a RUNNING trial with no worker yet, for this long: dead
-
-
-def _alive(owner: dict) -> bool:
-    pid = owner.get("pid")
-    if not isinstance(pid, int):
-        return False
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        pass  # exists, another user's
-    started = owner.get("start")
-    return started is None or process_start(pid) in (None, started)
 
 
 def is_stale(trial, host: str | None = None, now: datetime | None = None) -> bool:
@@ -60,7 +47,7 @@ def is_stale(trial, host: str | None = None, now: datetime | None = None) -> boo
         return start is not None and (now or datetime.now()) - start > ORPHAN_GRACE
     if owner.get("host") != host:
         return False
-    return not _alive(owner)
+    return not is_running(owner)
 
 
 def fail_stale_trials(study) -> list[int]:

@@ -18,50 +18,19 @@ from optuna.samplers import BaseSampler
 from optuna.samplers._lazy_random_state import LazyRandomState
 from optuna.trial import TrialState
 
-SAMPLERS = ("nsga2", "tpe", "random")
-NSGA2_POPULATION = 40
-TPE_STARTUP_TRIALS = 20
+from .settings import SAMPLERS, sampler_settings
+
 ERROR_ATTR = "error"  # user attr set on a trial whose objective raised
 
-
-def sampler_settings(name: str, seed: int) -> dict:
-    """Every setting of a sampler, as recorded in the study and in ``settings.json``."""
-    if name not in SAMPLERS:
-        raise ValueError(f"sampler = {name!r} is not one of {', '.join(SAMPLERS)}")
-    seeding = "each trial's sampler is seeded from (seed + worker index, number of finished trials)"
-    if name == "nsga2":
-        return {
-            "name": "nsga2",
-            "class": "optuna.samplers.NSGAIISampler",
-            "seed": seed,
-            "population_size": NSGA2_POPULATION,
-            "crossover": "uniform",
-            "crossover_prob": 0.9,
-            "swapping_prob": 0.5,
-            "mutation_prob": None,
-            "seeding": seeding,
-        }
-    if name == "tpe":
-        return {
-            "name": "tpe",
-            "class": "optuna.samplers.TPESampler",
-            "seed": seed,
-            "n_startup_trials": TPE_STARTUP_TRIALS,
-            "multivariate": True,
-            "group": True,
-            "constant_liar": False,
-            "seeding": seeding,
-        }
-    return {
-        "name": "random",
-        "class": "optuna.samplers.RandomSampler",
-        "seed": seed,
-        "seeding": seeding,
-    }
+__all__ = ["SAMPLERS", "SlotSeededSampler", "build_sampler", "finished_count", "sampler_settings"]
 
 
 def build_sampler(settings: dict, seed: int) -> BaseSampler:
-    """An optuna sampler from :func:`sampler_settings`, with the given seed."""
+    """An optuna sampler from :func:`optimise.settings.sampler_settings`, with the given seed.
+
+    A new sampler is a name in :data:`optimise.settings.SAMPLERS` with its
+    recorded settings in :func:`~optimise.settings.sampler_settings`, and a branch here.
+    """
     name = settings["name"]
     if name == "nsga2":
         return optuna.samplers.NSGAIISampler(

@@ -17,10 +17,11 @@ import io
 import math
 from pathlib import Path
 
-from .errors import InputError
+from .errors import InputError, user_input
 from .files import write_atomic, write_json_atomic
 from .profiles import PARAMETERS, with_parameter
-from .reports import ASSUMPTIONS, fmt_fidelity, fmt_number
+from .labels import fmt_fidelity, fmt_number
+from .reports import ASSUMPTIONS
 
 CSV_COLUMNS = (
     "value",
@@ -125,10 +126,8 @@ def run_sweep(
                 f"{parameter} = {value:g}: no recipe up to depth {depth} meets the limits"
             )
         best = max(results, key=lambda r: r.fidelity)
-        try:
+        with user_input(f"{parameter} = {value:g}"):
             answers = [cheapest_reaching(results, t, limits) for t in targets]
-        except ValueError as error:
-            raise InputError(f"{parameter} = {value:g}: {error}") from None
         points.append(
             {
                 "value": value,

@@ -67,7 +67,7 @@ def test_durations():
         (["search", "--time", "soon"], "not a duration"),
         (["search", "--target", "1.2"], "outside (0.5, 1)"),
         (["search", "--objectives", "fidelity,cost"], "unknown objective 'cost'"),
-        (["search", "--objectives", "yield,fidelity"], "start with fidelity,yield"),
+        (["search", "--objectives", "fidelity,memory"], "must include 'fidelity' and 'yield'"),
         (["search", "--sampler", "grid"], "invalid choice"),
         (["evaluate"], "required: RECIPE"),
     ],
@@ -87,7 +87,7 @@ def test_bad_recipe_points_at_the_error(capsys):
 
 def test_unknown_baseline_suggests_a_name(capsys):
     assert main(["evaluate", "dejmp:2"]) == 2
-    assert "did you mean dejmps?" in capsys.readouterr().err
+    assert "did you mean 'dejmps'?" in capsys.readouterr().err
 
 
 # ----------------------------------------------------------------------------- evaluate

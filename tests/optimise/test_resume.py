@@ -133,7 +133,7 @@ def test_killed_search_resumes_to_the_uninterrupted_result(tmp_path, reference):
     assert complete_sequence(after) == complete_sequence(ref_trials)
     assert out.n_trials_total == ref_out.n_trials_total == 60
     assert [r.recipe_id for r in out.front] == [r.recipe_id for r in ref_out.front]
-    assert load_run(run_dir)["front"] == load_run(ref_out.run_dir)["front"]
+    assert load_run(run_dir).results == load_run(ref_out.run_dir).results
 
 
 @pytest.mark.slow
@@ -153,7 +153,7 @@ def test_ctrl_c_inside_a_trial_then_resume(tmp_path, reference, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         run_search(PROFILE, run_dir=run_dir, **ARGS)
     partial = load_run(run_dir)  # the front written so far survives the interruption
-    assert partial["n_trials"] == 44
+    assert partial.n_trials == 44
     failed = [t for t in trials_of(run_dir) if t.state == TrialState.FAIL]
     assert len(failed) == 1 and "error" not in failed[0].user_attrs
     monkeypatch.setattr(optimise.objective, "evaluate", evaluate)

@@ -71,8 +71,13 @@ def test_run_folder_front_and_trials(tmp_path):
     )
     for name in ("settings.json", "profile.json", "study.db", "front.json", "exhaustive.json"):
         assert (run_dir / name).exists(), name
-    data = load_run(run_dir)
+    data = json.loads((run_dir / "front.json").read_text())  # the file's own layout
     assert set(data) == FRONT_KEYS
+    front_read = load_run(run_dir)  # and the Front type read back from it
+    assert front_read.to_json()["front"] == data["front"]
+    assert [(b.name, b.depth) for b in front_read.baselines] == [
+        (b.name, b.depth) for b in out.baselines
+    ]
     assert data["n_trials"] == out.n_trials_total == out.n_trials_this_run == 30
     assert data["profile"] == PROFILE.to_dict()
     assert data["settings"]["seed"] == 0 and data["settings"]["sampler"]["name"] == "nsga2"
@@ -196,9 +201,9 @@ def test_complete_when_the_exhaustive_layer_covers_the_space(tmp_path):
         progress=False,
     )
     data = load_run(tmp_path / "all")
-    assert data["complete"] is True and data["complete_depth"] == 2
+    assert data.complete is True and data.complete_depth == 2
     ex = exhaustive_front(PROFILE, max_depth=2)
-    assert {tuple(p) for p in quantise(points(data["front"]))} == {
+    assert {tuple(p) for p in quantise(points(r.to_dict() for r in data.results))} == {
         tuple(p) for p in quantise(np.array([[r.fidelity, r.pair_yield] for r in ex.results]))
     }
     assert len(out.front) == len(ex.results)
@@ -213,7 +218,7 @@ def test_target_reached_and_out_of_reach(tmp_path):
     # the cheapest reaching F >= 0.9 among all linear recipes of depth <= 2 (exhaustive)
     best_cost = min(r.raw_pairs_per_output for r in out.front if r.fidelity >= 0.9)
     assert out.target.recipe.raw_pairs_per_output == pytest.approx(best_cost)
-    assert load_run(tmp_path / "t1")["target"]["reached"] is True
+    assert load_run(tmp_path / "t1").target.reached is True
     out = run_search(
         PROFILE,
         run_dir=tmp_path / "t2",

@@ -1,37 +1,19 @@
-"""The front of a run: exhaustive results and finished trials merged, and ``front.json``."""
+"""The front of a run as it grows: exhaustive results and finished trials merged."""
 
 from __future__ import annotations
 
 import math
-from pathlib import Path
 
-from models.baselines import BASELINES, baseline
 from models.evaluate import evaluate
 from models.notation import parse_recipe
 from models.recipes import Recipe
 
-from . import runfolder
-from .files import write_json_atomic
-from .objective import OBJECTIVES, values_from_dict
+from .front import Front, result_from_dict
+from .objectives import maximised, values_from_dict
 from .pareto import quantise
+from .run import now_iso, stillroom_version
 from .samplers import ERROR_ATTR
 from .space import describe_space
-
-_DICT_KEYS = {
-    "fidelity": "fidelity",
-    "yield": "yield",
-    "memory": "memory_per_node",
-    "time": "time_per_output_s",
-}
-
-
-def baseline_results(profile, max_depth: int) -> list:
-    """``(RecipeResult, name, depth)`` of every textbook baseline at depths 1..max_depth."""
-    out = []
-    for name in BASELINES:
-        for depth in range(1, max_depth + 1):
-            out.append((evaluate(baseline(name, depth), profile), name, depth))
-    return out
 
 
 def _dominates(a, b, maximise) -> bool:
@@ -49,7 +31,7 @@ def _same_point(a, b) -> bool:
 
 
 class FrontTracker:
-    """The current front of a run, updated trial by trial, written to ``front.json``.
+    """The current front of a run, updated trial by trial, written as a :class:`Front`.
 
     The front is over the run's objectives, among the recipes that respect its
     limits, with one recipe per point (the one of fewest rounds, then the first in
@@ -58,23 +40,35 @@ class FrontTracker:
 
     def __init__(
         self,
-        run_dir,
+        run,
         *,
         profile,
         settings,
-        objectives,
-        limits,
+        recorded,
         baselines,
         exhaustive,
         complete,
-        max_depth,
     ):
-        self.run_dir = Path(run_dir)
+        """
+        Parameters
+        ----------
+        run : optimise.run.Run
+        profile : models.Profile
+        settings : optimise.settings.SearchSettings
+        recorded : dict
+            The settings as the run folder recorded them (with dates), for ``front.json``.
+        baselines : list of BaselineResult
+        exhaustive : optimise.exhaustive.ExhaustiveFront
+        complete : bool
+            Whether the exhaustive layer covers the whole searched space.
+        """
+        self.run = run
         self.profile = profile
-        self.settings = settings
-        self.objectives = tuple(objectives)
-        self.maximise = tuple(OBJECTIVES[o][1] for o in self.objectives)
-        self.limits = limits
+        self.recorded = recorded
+        self.objectives = settings.objectives
+        self.maximise = maximised(self.objectives)
+        self.limits = settings.limits
+        max_depth = settings.depth_cap
         self.baselines = baselines
         self.exhaustive = exhaustive
         self.complete = complete
@@ -93,10 +87,10 @@ class FrontTracker:
         self.offer(evaluate(Recipe(()), profile).to_dict(), 0)
         for r in exhaustive.results:
             self.offer(r.to_dict(), len(r.trace))
-        for r, _, depth in baselines:  # the study starts from them; listed even before it runs
-            if depth <= max_depth:
-                self._known.setdefault(r.recipe_id, r)
-                self.offer(r.to_dict(), depth)
+        for b in baselines:  # the study starts from them; listed even before it runs
+            if b.depth <= max_depth:
+                self._known.setdefault(b.result.recipe_id, b.result)
+                self.offer(b.result.to_dict(), b.depth)
 
     def offer(self, entry: dict, depth: int) -> bool:
         """Consider one recipe (``RecipeResult.to_dict()`` form); True if the front changed."""
@@ -166,25 +160,23 @@ class FrontTracker:
             out.append(known if known is not None else evaluate(entry["recipe"], self.profile))
         return out
 
-    def payload(self, n_trials: int | None) -> dict:
-        return {
-            "stillroom_version": runfolder.stillroom_version(),
-            "created": self.settings.get("created"),
-            "updated": runfolder.now_iso(),
-            "profile": self.profile.to_dict(),
-            "settings": self.settings,
-            "searched_space": self.space_sentence,
-            "complete_depth": self.exhaustive.complete_depth,
-            "complete": bool(self.complete),
-            "n_trials": len(self.finished) if n_trials is None else int(n_trials),
-            "front": self.entries(),
-            "baselines": [
-                {**r.to_dict(), "baseline": name, "depth": depth}
-                for r, name, depth in self.baselines
-            ],
-            "target": None if self.target is None else self.target.to_dict(),
-        }
+    def front(self, n_trials: int | None) -> Front:
+        """The front as it stands (recipes as stored: without their round-by-round trace)."""
+        return Front(
+            stillroom_version=stillroom_version(),
+            created=self.recorded.get("created"),
+            updated=now_iso(),
+            profile=self.profile.to_dict(),
+            settings=self.recorded,
+            searched_space=self.space_sentence,
+            complete_depth=self.exhaustive.complete_depth,
+            complete=bool(self.complete),
+            n_trials=len(self.finished) if n_trials is None else int(n_trials),
+            results=tuple(result_from_dict(e) for e in self.entries()),
+            baselines=tuple(self.baselines),
+            target=self.target,
+        )
 
-    def write(self, n_trials: int | None) -> Path:
-        """Write ``front.json`` atomically."""
-        return write_json_atomic(self.run_dir / runfolder.FRONT_FILE, self.payload(n_trials))
+    def write(self, n_trials: int | None):
+        """Write ``front.json`` (atomically, through the :class:`Run`)."""
+        return self.run.write_front(self.front(n_trials))

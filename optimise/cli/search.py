@@ -1,0 +1,234 @@
+"""``stillroom search``: search recipes and report the Pareto front (resumable)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from ..objectives import DEFAULT as DEFAULT_OBJECTIVES
+from ..objectives import OBJECTIVES
+from ..settings import SAMPLERS
+from . import common
+
+NAME = "search"
+DEFAULT_DEPTH = 5
+DEFAULT_TRIALS = 1000
+INTERRUPTED = "interrupted; run the same command to resume"
+
+
+def add_parser(sub, parents) -> None:
+    p = sub.add_parser(
+        NAME,
+        parents=parents,
+        formatter_class=common.Formatter,
+        help="search recipes and report the Pareto front (resumable)",
+        description=common.wrap(
+            "Search purification recipes for PROFILE (default: the built-in demo) and "
+            "report the Pareto front of fidelity against yield, beside the textbook baselines.\n"
+            "The run folder keeps the study: run the same command again to resume it, or with a "
+            "larger --trials to extend it. Writes front.csv, recipes.json, table.tex, table.md, "
+            "front.png and front.svg."
+        ),
+        epilog="examples:\n"
+        "  stillroom search                               the demo, about a minute\n"
+        "  stillroom search mine.toml --target 0.99       cheapest recipe reaching F >= 0.99\n"
+        "  stillroom search mine.toml --time 2h --trials 100000   overnight\n"
+        "  stillroom search mine.toml --objectives fidelity,yield,memory --max-memory 3\n"
+        "  stillroom search mine.toml --storage postgresql://host/db --workers 2\n"
+        "      (run the same command on several machines to share one study)",
+    )
+    common.add_profile_argument(p)
+    p.add_argument("--name", help="run folder name (default: from the profile's name)")
+    common.add_runs_dir(p, "folder holding run folders (default: %(default)s)")
+    p.add_argument(
+        "--depth",
+        type=common.positive_int,
+        default=DEFAULT_DEPTH,
+        metavar="D",
+        help="largest number of rounds in a recipe (default: %(default)s)",
+    )
+    p.add_argument(
+        "--trials",
+        type=common.non_negative_int,
+        default=DEFAULT_TRIALS,
+        metavar="N",
+        help="total trials the study should reach (default: %(default)s)",
+    )
+    p.add_argument(
+        "--time",
+        type=common.parse_duration,
+        metavar="T",
+        help="wall-time budget for this run, e.g. 90s, 10m, 2h",
+    )
+    p.add_argument(
+        "--target",
+        type=common.fidelity,
+        metavar="F",
+        help="also report the cheapest recipe reaching output fidelity F",
+    )
+    optional = "".join(f"[,{o}]" for o in OBJECTIVES if o not in DEFAULT_OBJECTIVES)
+    p.add_argument(
+        "--objectives",
+        type=common.objectives,
+        default=DEFAULT_OBJECTIVES,
+        metavar="LIST",
+        help=f"{','.join(DEFAULT_OBJECTIVES)}{optional} "
+        f"(default: {','.join(DEFAULT_OBJECTIVES)})",
+    )
+    common.add_limit_options(p)
+    p.add_argument(
+        "--exhaustive-depth",
+        type=common.non_negative_int,
+        metavar="D",
+        help="first evaluate every linear recipe to depth D exactly "
+        "(default: the search layer's choice)",
+    )
+    p.add_argument(
+        "--storage",
+        metavar="URL",
+        help="study storage: a file path, sqlite:///..., postgresql://... "
+        "(default: study.db in the run folder)",
+    )
+    p.add_argument(
+        "--workers",
+        type=common.positive_int,
+        default=1,
+        metavar="N",
+        help="worker processes on this machine (default: %(default)s)",
+    )
+    p.add_argument("--seed", type=int, default=0, help="sampler seed (default: %(default)s)")
+    p.add_argument(
+        "--sampler",
+        choices=SAMPLERS,
+        default=SAMPLERS[0],
+        help="optuna sampler (default: %(default)s)",
+    )
+    p.add_argument("--no-progress", action="store_true", help="no progress bar")
+    p.set_defaults(handler=run)
+
+
+def settings_from(args):
+    """The :class:`optimise.settings.SearchSettings` the options ask for."""
+    from ..settings import SearchSettings
+
+    return SearchSettings(
+        max_depth=args.depth,
+        objectives=args.objectives,
+        limits=common.limits(args),
+        exhaustive_depth=args.exhaustive_depth,
+        seed=args.seed,
+        sampler=args.sampler,
+        storage=args.storage,
+        n_trials=args.trials,
+        timeout_s=args.time,
+        workers=args.workers,
+        target_fidelity=args.target,
+    )
+
+
+def run(args) -> int:
+    profile, label = common.profile_or_demo(args.profile)
+    settings = settings_from(args)
+    from ..reports import hashing_sentence, raw_hashing_yield, write_reports
+    from ..search import run_search
+
+    run_dir = Path(args.runs_dir) / (args.name or common.slug(profile.name))
+    out = common.console(stderr=args.json)
+    if not args.json:
+        out.print(f"profile: {label}; run folder: {run_dir}")
+    try:
+        with InterruptWatch():
+            outcome = run_search(
+                profile, run_dir=run_dir, settings=settings, progress=not args.no_progress
+            )
+    except KeyboardInterrupt:
+        print(INTERRUPTED, file=sys.stderr)
+        return 130
+    written = write_reports(run_dir)
+    if args.json:
+        common.print_json(
+            {
+                "kind": "search",
+                "run_dir": str(run_dir),
+                "profile": profile.to_dict(),
+                "raw_hashing_yield": raw_hashing_yield(profile.to_dict()),
+                "n_trials_total": outcome.n_trials_total,
+                "n_trials_this_run": outcome.n_trials_this_run,
+                "complete_depth": outcome.complete_depth,
+                "front": [r.to_dict() for r in outcome.front],
+                "baselines": [b.to_dict() for b in outcome.baselines],
+                "target": None if outcome.target is None else outcome.target.to_dict(),
+                "files": [str(p) for p in written],
+            }
+        )
+        return 0
+    out.print(
+        f"{common.count(outcome.n_trials_this_run, 'trial')} this run, "
+        f"{outcome.n_trials_total} in the study"
+        + (
+            f"; every linear recipe to depth {outcome.complete_depth} evaluated"
+            if outcome.complete_depth
+            else ""
+        )
+    )
+    title = f"Pareto front ({len(outcome.front)} recipes, fidelity first)"
+    common.print_front(out, outcome.front, outcome.baselines, title)
+    if outcome.target is not None:
+        out.print()
+        out.print(
+            common.bold(
+                f"target F >= {outcome.target.target_fidelity:g}:", f" {outcome.target.message}"
+            )
+        )
+    out.print()
+    out.print(hashing_sentence(profile.to_dict()))
+    common.print_written(out, written, run_dir)
+    common.print_assumptions(out)
+    return 0
+
+
+class InterruptWatch:
+    """Notes a Ctrl-C during a search and hushes optuna's log lines about it.
+
+    A KeyboardInterrupt is raised as usual. A Ctrl-C that lands inside optuna's
+    own bookkeeping can surface as another exception; once a Ctrl-C has been
+    seen, that exception is re-raised as the KeyboardInterrupt it stands for
+    (chained to it), since the study is left resumable all the same (stale
+    trials are failed on the next run). Without a Ctrl-C, every error passes
+    through untouched. The optuna warnings that report the interrupted trial
+    (with a traceback) are dropped: the command line prints its own line.
+    """
+
+    def __init__(self):
+        self.seen = False
+        self._previous = None
+        self._handlers = []
+
+    def _on_sigint(self, signum, frame):
+        self.seen = True
+        raise KeyboardInterrupt
+
+    def filter(self, record) -> bool:
+        return not self.seen
+
+    def __enter__(self):
+        import logging
+        import signal
+        import threading
+
+        if threading.current_thread() is threading.main_thread():
+            self._previous = signal.signal(signal.SIGINT, self._on_sigint)
+        self._handlers = list(logging.getLogger("optuna").handlers)
+        for handler in self._handlers:
+            handler.addFilter(self)
+        return self
+
+    def __exit__(self, kind, error, traceback) -> None:
+        import signal
+
+        if self._previous is not None:
+            signal.signal(signal.SIGINT, self._previous)
+        for handler in self._handlers:
+            handler.removeFilter(self)
+        if self.seen and error is not None and not isinstance(error, KeyboardInterrupt):
+            raise KeyboardInterrupt from error
