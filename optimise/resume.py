@@ -26,6 +26,7 @@ import optuna
 from optuna.trial import TrialState, create_trial
 
 from models.evaluate import evaluate
+from models.kinds import N_INPUTS
 
 from .objective import WORKER_ATTR, trial_attrs, trial_constraints
 from .objectives import objective_values
@@ -115,13 +116,20 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
     return done
 
 
+def _unused_rotation(key: str, selection) -> bool:
+    """Whether ``key`` is a rotation of an input that a round of ``selection`` does not have."""
+    if ".rot" not in key:
+        return False
+    return int(key[key.index(".rot") + 4 :]) >= N_INPUTS.get(selection, 0)
+
+
 def _used_params(params: dict, depth: int) -> dict:
     """The parameters a trial of this depth suggests (an enqueued set may hold more)."""
     out = {}
     for k, v in params.items():
         if k != "depth":
             i = int(k[1 : k.index(".")])
-            if i >= depth or (k.endswith(".rot2") and params.get(f"r{i}.selection") != "double"):
+            if i >= depth or _unused_rotation(k, params.get(f"r{i}.selection")):
                 continue
         out[k] = v
     return out

@@ -14,10 +14,11 @@ Parameters (all categorical but the depth, and conditional on it, which suits TP
 
 from __future__ import annotations
 
+from models.kinds import N_INPUTS, SELECTIONS
 from models.recipes import Recipe, Round
 from models.rotations import ROTATION_NAMES
 
-SELECTION_CHOICES = ("single", "double")
+SELECTION_CHOICES = SELECTIONS
 TWIRL_CHOICES = (False, True)
 
 
@@ -65,8 +66,9 @@ def recipe_from_params(params: dict, max_depth: int) -> Recipe:
     for i in range(depth):
         selection = params[f"r{i}.selection"]
         kind = "raw" if i == 0 else params[f"r{i}.sacrificed"]
-        n_inputs = 3 if selection == "double" else 2
-        rotations = tuple(ROTATION_NAMES.index(params[f"r{i}.rot{j}"]) for j in range(n_inputs))
+        rotations = tuple(
+            ROTATION_NAMES.index(params[f"r{i}.rot{j}"]) for j in range(N_INPUTS[selection])
+        )
         twirl = bool(params[f"r{i}.twirl"])
         if kind.startswith("prefix"):
             k = int(kind[len("prefix") :])
@@ -92,7 +94,7 @@ def suggest_recipe(trial, max_depth: int, nested: bool = True) -> Recipe:
             params[f"r{i}.sacrificed"] = trial.suggest_categorical(
                 f"r{i}.sacrificed", sacrificed_choices(i, nested)
             )
-        for j in range(3 if selection == "double" else 2):
+        for j in range(N_INPUTS[selection]):
             params[f"r{i}.rot{j}"] = trial.suggest_categorical(f"r{i}.rot{j}", ROTATION_NAMES)
         params[f"r{i}.twirl"] = trial.suggest_categorical(f"r{i}.twirl", TWIRL_CHOICES)
     return recipe_from_params(params, max_depth)
