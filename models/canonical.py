@@ -259,8 +259,11 @@ def _canon(recipe, flip_ok: bool):
         rounds.append(r)
     chosen, final = _least_rounds(plans, flip_ok, raw_state)
     out = _sort_pumped(list(chosen))
-    first = out[0] if out else None
-    if first and first.sacrificed in ("raw", "same") and applies("first-round-copy", first.selection):
+    if (
+        out
+        and out[0].sacrificed in ("raw", "same")
+        and applies("first-round-copy", out[0].selection)
+    ):
         symmetric = len(out) == 1 or out[1].sacrificed == "same"
         out[0] = replace(out[0], sacrificed="same" if symmetric else "raw")
     return replace(recipe, rounds=tuple(out)), final
