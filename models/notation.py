@@ -39,7 +39,7 @@ procedure as ``sY^2``.
 A recipe's canonical string (:attr:`models.recipes.Recipe.notation`) is
 :func:`format_recipe` of :func:`canonical`; the rules of the canonical form,
 what each needs of the noise and the step kinds it is proven for are in
-:mod:`models.canonical`. The JSON form (:func:`recipe_to_json`) adds the key
+:mod:`models.canonical_form`. The JSON form (:func:`recipe_to_json`) adds the key
 ``"raw_twirl": true`` for a recipe whose raw pairs are twirled.
 
 References
@@ -50,7 +50,7 @@ References
 
 from __future__ import annotations
 
-from .canonical import canonical
+from .canonical_form import canonical
 from .formatting import RAW_TWIRL, format_recipe
 from .kinds import STEP_KINDS
 from .recipes import Recipe, Round

@@ -14,7 +14,7 @@ its input pairs.
 The string form of recipes (``"sY^3"``, ``"pZ.pX"``) is read by
 :mod:`models.notation` and written by :mod:`models.formatting`; a recipe's
 :attr:`Recipe.notation` is its canonical string (rules in
-:mod:`models.canonical`) and :attr:`Recipe.recipe_id` a hash of it, so that two
+:mod:`models.canonical_form`) and :attr:`Recipe.recipe_id` a hash of it, so that two
 spellings of the same physical procedure share one identity. Neither module
 imports this one at module level. :func:`making_order` and
 :func:`memory_needed` live in :mod:`models.making` and are re-exported here.
@@ -35,7 +35,7 @@ from dataclasses import dataclass
 from functools import cached_property
 from numbers import Integral
 
-from .canonical import canonical
+from .canonical_form import canonical
 from .formatting import format_recipe
 from .kinds import N_INPUTS, SELECTIONS
 from .making import making_order, memory_needed
@@ -223,7 +223,7 @@ class Recipe:
 
     @cached_property
     def notation(self) -> str:
-        """Canonical string of the recipe (see :mod:`models.canonical`)."""
+        """Canonical string of the recipe (see :mod:`models.canonical_form`)."""
         return format_recipe(canonical(self))
 
     @cached_property
