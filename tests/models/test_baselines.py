@@ -74,6 +74,14 @@ KEPT_MISSES = {
 FRESH_MISSES = {"pumping": "Y", "alternating-pumping": "ZX"}
 
 
+def _noise_free_success(r, inputs):
+    circuit = STEP_KINDS[r.selection].circuit
+    success, _ = run_step(
+        circuit, inputs, r.rotations, two_qubit=1.0, single_qubit=1.0, measurement=1.0
+    )
+    return success
+
+
 @pytest.mark.parametrize("name", sorted(KEPT_MISSES))
 def test_each_round_misses_the_intended_error_of_the_original_frame(name):
     # Put one error of the original frame on the kept pair, carry it through the
@@ -87,11 +95,7 @@ def test_each_round_misses_the_intended_error_of_the_original_frame(name):
             kept = np.eye(4)[error]
             for earlier in recipe.rounds[:i]:
                 kept = rotate(kept, earlier.rotations[0])
-            circuit = STEP_KINDS[r.selection].circuit
-            inputs = [kept] + [PHI_PLUS] * (r.n_inputs - 1)
-            success, _ = run_step(
-                circuit, inputs, r.rotations, two_qubit=1.0, single_qubit=1.0, measurement=1.0
-            )
+            success = _noise_free_success(r, [kept] + [PHI_PLUS] * (r.n_inputs - 1))
             expected = 1.0 if error == missed else 0.0
             assert_allclose(success, expected, atol=1e-15, err_msg=f"{name} {i} {error}")
         assert original_frame_checks(recipe)[i][0] == missed
@@ -105,14 +109,7 @@ def test_fresh_pairs_are_checked_in_the_original_frame(name):
     for i, r in enumerate(recipe.rounds):
         missed = LETTER[FRESH_MISSES[name][i % len(FRESH_MISSES[name])]]
         for error in (X, Y, Z):
-            success, _ = run_step(
-                STEP_KINDS[r.selection].circuit,
-                [PHI_PLUS, np.eye(4)[error]],
-                r.rotations,
-                two_qubit=1.0,
-                single_qubit=1.0,
-                measurement=1.0,
-            )
+            success = _noise_free_success(r, [PHI_PLUS, np.eye(4)[error]])
             assert_allclose(success, 1.0 if error == missed else 0.0, atol=1e-15)
 
 
