@@ -270,9 +270,11 @@ class _Product:
     trace: tuple = field(default=())
 
 
-def _raw(profile) -> _Product:
+def _raw(profile, twirled: bool = False) -> _Product:
+    # a raw pair twirled on arrival (a recipe's leading '~') takes no time to twirl
     time_s, laplace = raw_pair_figures(profile)
-    return _Product(profile.raw, 1.0, 1, 0, time_s, laplace)
+    bell = twirl(profile.raw, profile.noise.single_qubit) if twirled else profile.raw
+    return _Product(bell, 1.0, 1, 0, time_s, laplace)
 
 
 def _step(r: Round, inputs: list[_Product], profile) -> tuple[_Product, float]:
@@ -325,7 +327,7 @@ def _step(r: Round, inputs: list[_Product], profile) -> tuple[_Product, float]:
 
 
 def _evaluate(recipe: Recipe, profile) -> _Product:
-    raw = _raw(profile)
+    raw = _raw(profile, recipe.raw_twirl)
     current = raw
     steps: list[float] = []
     trace = []

@@ -7,10 +7,17 @@ sacrificed pairs come from (fresh raw pairs, copies of the pair made so far, or 
 sub-recipe, which makes the recipe a tree), the bilateral rotation applied to
 each input and whether the output is re-twirled to Werner form.
 
-The string form of recipes (``"sY^3"``, ``"pZ.pX"``) lives in
-:mod:`models.notation`; a recipe's :attr:`Recipe.notation` is its canonical
-string and :attr:`Recipe.recipe_id` a hash of it, so that two spellings of the
-same physical procedure share one identity.
+A recipe may also twirl the raw pairs its chain uses to Werner form on arrival
+(:attr:`Recipe.raw_twirl`, written with a leading ``~``), as BBPSSW does with
+its input pairs.
+
+The string form of recipes (``"sY^3"``, ``"pZ.pX"``) is read by
+:mod:`models.notation` and written by :mod:`models.formatting`; a recipe's
+:attr:`Recipe.notation` is its canonical string (rules in
+:mod:`models.canonical_form`) and :attr:`Recipe.recipe_id` a hash of it, so that two
+spellings of the same physical procedure share one identity. Neither module
+imports this one at module level. :func:`making_order` and
+:func:`memory_needed` live in :mod:`models.making` and are re-exported here.
 
 References
 ----------
@@ -28,8 +35,13 @@ from dataclasses import dataclass
 from functools import cached_property
 from numbers import Integral
 
+from .canonical_form import canonical
+from .formatting import format_recipe
 from .kinds import N_INPUTS, SELECTIONS
+from .making import making_order, memory_needed
 from .rotations import ROTATION_NAMES
+
+__all__ = ["SACRIFICED", "Recipe", "Round", "making_order", "memory_needed"]
 
 SACRIFICED = ("raw", "same", "sub")
 
@@ -67,34 +79,6 @@ def _rotation_tuple(rotations, n_inputs: int) -> tuple[int, ...]:
                 f"name in {', '.join(ROTATION_NAMES)} (models.rotations.ROTATION_NAMES)"
             )
     return tuple(out)
-
-
-def making_order(memories) -> tuple[int, ...]:
-    """Order in which a step's inputs are made, from their memory needs (qubits per node).
-
-    Largest need first, which minimises the qubits held at once; ties keep input
-    order, so the kept pair (input 0) comes first among equals.
-
-    Examples
-    --------
-    >>> making_order([2, 1]), making_order([2, 3, 3])
-    ((0, 1), (1, 2, 0))
-    """
-    return tuple(sorted(range(len(memories)), key=lambda i: -memories[i]))
-
-
-def memory_needed(memories) -> int:
-    """Qubits per node for a step whose inputs need ``memories``, made in :func:`making_order`.
-
-    ``max_j (memories[order[j]] + j)``: while input ``order[j]`` is made, the ``j``
-    inputs made before it are stored.
-
-    Examples
-    --------
-    >>> memory_needed([1, 1]), memory_needed([3, 3]), memory_needed([2, 1, 1])
-    (2, 4, 3)
-    """
-    return max(memories[i] + j for j, i in enumerate(making_order(memories)))
 
 
 @dataclass(frozen=True)
@@ -180,6 +164,12 @@ class Recipe:
     ----------
     rounds : tuple of Round
         The main chain, first round first. Trees arise through ``Round.source``.
+    raw_twirl : bool
+        Twirl each raw pair the main chain uses (the one it starts from, the
+        fresh pairs of pumping rounds and so those of the copies of symmetric
+        rounds) to Werner form on arrival, with the single-qubit noise of one
+        rotation (:func:`models.evaluate.twirl`). A source is a recipe of its
+        own with its own ``raw_twirl``.
 
     Examples
     --------
@@ -194,8 +184,11 @@ class Recipe:
     """
 
     rounds: tuple[Round, ...] = ()
+    raw_twirl: bool = False
 
     def __post_init__(self):
+        if not isinstance(self.raw_twirl, bool):
+            raise ValueError(f"raw_twirl = {self.raw_twirl!r} must be True or False")
         try:
             rounds = tuple(self.rounds)
         except TypeError:
@@ -212,8 +205,10 @@ class Recipe:
 
     @property
     def is_linear(self) -> bool:
-        """True when no round takes its sacrificed pairs from a sub-recipe."""
-        return all(r.source is None for r in self.rounds)
+        """True when no round takes its sacrificed pairs from a sub-recipe and raw
+        pairs are used as they arrive: the recipes that have round codes
+        (:func:`models.chain.linear_codes`)."""
+        return not self.raw_twirl and all(r.source is None for r in self.rounds)
 
     @cached_property
     def memory_per_node(self) -> int:
@@ -228,9 +223,7 @@ class Recipe:
 
     @cached_property
     def notation(self) -> str:
-        """Canonical string of the recipe (see :mod:`models.notation`)."""
-        from .notation import canonical, format_recipe
-
+        """Canonical string of the recipe (see :mod:`models.canonical_form`)."""
         return format_recipe(canonical(self))
 
     @cached_property

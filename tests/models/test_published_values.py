@@ -131,6 +131,26 @@ def test_bbpssw_worked_values(f, f_out, n):
     assert_allclose(bbpssw(f), (f_out, n), atol=SIX_DECIMALS, rtol=0)  # guards the table
 
 
+@pytest.mark.parametrize(("f", "f_out", "n"), BBPSSW_WORKED)
+def test_bbpssw_baseline_gives_the_worked_values(f, f_out, n):
+    # The baseline twirls the raw pair first: with perfect single-qubit gates that
+    # leaves a Werner pair unchanged, so the published values stand
+    # (Bennett et al., PRL 76, 722 (1996)).
+    result = models.evaluate(models.baseline("bbpssw", 1), models.Profile(tuple(models.werner(f))))
+    assert_allclose(
+        [result.fidelity, result.success_probabilities[0]], [f_out, n], atol=SIX_DECIMALS, rtol=0
+    )
+
+
+def test_bbpssw_baseline_is_the_published_map_iterated():
+    # Bennett et al., PRL 76, 722 (1996): F' and N of a Werner input, iterated
+    f = 0.7
+    result = models.evaluate(models.baseline("bbpssw", 4), models.Profile(tuple(models.werner(f))))
+    for t in result.trace:
+        f, n = bbpssw(f)
+        assert_allclose([t.fidelity, t.success_probability], [f, n], atol=TOL, rtol=0)
+
+
 def test_bbpssw_formula_on_random_fidelities_and_any_common_rotation():
     # A Werner pair is unchanged by every rotation, so the rotation cannot matter.
     rng = np.random.default_rng(722)
