@@ -103,10 +103,11 @@ def suggest_recipe(trial, max_depth: int, nested: bool = True) -> Recipe:
 def recipe_params(recipe: Recipe, max_depth: int) -> dict | None:
     """The parameters that make ``recipe`` in this space, or ``None`` if it is not in it.
 
-    A round whose source is not a prefix of the recipe's own main chain, or a recipe
-    deeper than ``max_depth``, is outside the space.
+    A round whose source is not a prefix of the recipe's own main chain, a recipe
+    deeper than ``max_depth``, or one that twirls its raw pairs (the space has no
+    parameter for that) is outside the space.
     """
-    if not 1 <= recipe.depth <= max_depth:
+    if not 1 <= recipe.depth <= max_depth or _twirls_raw_pairs(recipe):
         return None
     params: dict = {"depth": recipe.depth}
     for i, r in enumerate(recipe.rounds):
@@ -134,6 +135,12 @@ def recipe_params(recipe: Recipe, max_depth: int) -> dict | None:
             params[f"r{i}.rot{j}"] = ROTATION_NAMES[rot]
         params[f"r{i}.twirl"] = bool(r.twirl)
     return params
+
+
+def _twirls_raw_pairs(recipe: Recipe) -> bool:
+    return recipe.raw_twirl or any(
+        r.source is not None and _twirls_raw_pairs(r.source) for r in recipe.rounds
+    )
 
 
 def distributions_for(params: dict, max_depth: int, nested: bool = True) -> dict:

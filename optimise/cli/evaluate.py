@@ -103,10 +103,12 @@ def run(args) -> int:
         ("time / out", "right"),
     ):
         table.add_column(name, justify=justify)
-    raw = evaluate(Recipe(()), profile)  # the raw pair: its figures, its wait, from the model
+    written = canonical(recipe)
+    # the raw pair as the recipe uses it (twirled where it says so): figures and wait from the model
+    raw = evaluate(Recipe((), raw_twirl=written.raw_twirl), profile)
     table.add_row(
         "0",
-        "raw pair",
+        "raw pair, twirled (~)" if written.raw_twirl else "raw pair",
         _weights(raw.bell),
         fmt_fidelity(raw.fidelity),
         "",
@@ -114,7 +116,7 @@ def run(args) -> int:
         str(raw.memory_per_node),
         fmt_time(raw.time_per_output_s),
     )
-    steps = [format_recipe(Recipe((r,))) for r in canonical(recipe).rounds]
+    steps = [format_recipe(Recipe((r,))) for r in written.rounds]
     for row, step in zip(trace, steps, strict=True):
         table.add_row(
             str(row["round"]),

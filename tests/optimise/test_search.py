@@ -363,3 +363,6 @@ def test_space_parameters_round_trip_recipes():
     # a source that is not a prefix of the recipe itself is outside the space
     assert recipe_params(parse_recipe("sY^2.pY(pX)"), 4) is None
     assert recipe_params(parse_recipe("sY^5"), 4) is None
+    # so is a recipe that twirls its raw pairs (models.notation's leading '~')
+    for text in ("~sZ~^2", "sY.pY(~raw)", "sY.pY(~sY)"):
+        assert recipe_params(parse_recipe(text), 4) is None, text
