@@ -244,7 +244,7 @@ def _made(chains: ChainBatch, same: bool, n_inputs: int, bound, lattice) -> list
     return [chains.timed] + [sacrificed] * (n_inputs - 1)
 
 
-def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]:
+def advance(chains: ChainBatch, codes, profile, *, parent=None) -> tuple[ChainBatch, np.ndarray]:
     """Apply round ``codes[i]`` to chain ``i`` for every i at once.
 
     Parameters
@@ -253,6 +253,11 @@ def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]
     codes : int array, shape (N,)
         Indices into :data:`LINEAR_ROUNDS`.
     profile : models.Profile
+    parent : int array, shape (M,), optional
+        Apply ``codes[i]`` to chain ``parent[i]`` instead (``codes`` then has shape
+        (M,)): the same as ``advance(chains.take(parent), codes, profile)``, but the
+        joint waits of a chain's inputs are worked out once per chain, kind of
+        step and kind of sacrificed pair, whatever the number of its codes.
 
     Returns
     -------
@@ -272,9 +277,16 @@ def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]
     (0.68, 0.735294, 2)
     """
     codes = _check_codes(codes, 0)
-    n = len(chains)
-    if codes.shape != (n,):
-        raise ValueError(f"codes has shape {codes.shape}; expected ({n},), one per chain")
+    if parent is None:
+        n = len(chains)
+        if codes.shape != (n,):
+            raise ValueError(f"codes has shape {codes.shape}; expected ({n},), one per chain")
+        parent = np.arange(n)
+    else:
+        parent = np.asarray(parent, dtype=np.intp)
+        n = parent.size
+        if codes.shape != parent.shape or parent.ndim != 1:
+            raise ValueError(f"codes has shape {codes.shape}; expected {parent.shape}, as parent")
     bound = profile.bound()
     lattice, k = _lattice(chains, bound)
     branch = np.empty((n, k, 4))
@@ -292,10 +304,11 @@ def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]
                 if not mask.any():
                     continue
                 group, group_codes = rows[mask], row_codes[mask]
-                made = _made(chains.take(group), same, kind.n_inputs, bound, lattice)
-                joint = joint_waits(made, lattice, k)
+                states, inverse = np.unique(parent[group], return_inverse=True)
+                made = _made(chains.take(states), same, kind.n_inputs, bound, lattice)
+                joint = joint_waits(made, lattice, k).take(inverse.ravel())
                 _attempts(kind, joint, group, group_codes, bound, branch)
-    return _finish(chains, codes, branch, bound, lattice)
+    return _finish(chains.take(parent), codes, branch, bound, lattice)
 
 
 def _attempts(kind, joint, group, group_codes, bound, branch):
@@ -439,7 +452,7 @@ def evaluate_linear(codes, profile) -> dict:
             break
         key = parent[active] * N_CODES + codes[active, d]
         unique, inverse = np.unique(key, return_inverse=True)
-        level, p = advance(level.take(unique // N_CODES), unique % N_CODES, profile)
+        level, p = advance(level, unique % N_CODES, profile, parent=unique // N_CODES)
         rows = np.flatnonzero(active)
         success[rows, d] = p[inverse]
         ends = padding[rows, d + 1] if d + 1 < depth else np.ones(rows.size, dtype=bool)

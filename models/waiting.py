@@ -45,7 +45,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from functools import lru_cache
+from functools import cached_property, lru_cache
 
 import numpy as np
 
@@ -135,6 +135,16 @@ class RateLattice:
     levels: np.ndarray
     shift: np.ndarray
     groups: tuple
+
+    @cached_property
+    def group_maps(self) -> np.ndarray:
+        """Per group, the sum of its :data:`DECAY_BASIS` maps, shape (G, 4, 4)."""
+        return np.stack([DECAY_BASIS[list(g)].sum(axis=0) for g in self.groups])
+
+    @cached_property
+    def group_shift(self) -> np.ndarray:
+        """Per point and group, the point shifted by the group's rate, shape (K, G)."""
+        return self.shift[:, [g[0] for g in self.groups]]
 
     @property
     def grows(self) -> bool:
@@ -313,7 +323,9 @@ class Joint:
     def take(self, index) -> Joint:
         if self.dense is not None:
             return Joint(None, self.dense[index])
-        return Joint(tuple(f if f.shape[0] == 1 else f[index] for f in self.factors), None)
+        # per-row factors are taken; one broadcast row (a raw pair) stays as it is
+        rows = max(f.shape[0] for f in self.factors)
+        return Joint(tuple(f[index] if f.shape[0] == rows else f for f in self.factors), None)
 
 
 def _outer(factors) -> np.ndarray:
@@ -324,35 +336,12 @@ def _outer(factors) -> np.ndarray:
     return out
 
 
-def _tail(made, j: int, points: np.ndarray, lattice: RateLattice):
-    """Joint weights of inputs j..n when input j is taken at ``points`` (K,)."""
-    here = made[j].state[:, points]
-    if j == len(made) - 1:
-        return (here,), None
-    if not lattice.grows:  # perfect memories: waits change nothing
-        factors, dense = _tail(made, j + 1, points, lattice)
-        if dense is not None:
-            return None, _outer([here, dense])
-        return (here,) + factors, None
-    parts = decay_parts(here)  # (N, K, 4 parts, 4)
-    shifted = [(g, lattice.shift[points, g[0]]) for g in lattice.groups]
-    nxt = made[j + 1]
-    if j + 1 == len(made) - 1 and nxt.scale is not None:
-        # the last input's state does not depend on its time: still a product
-        first = sum(
-            nxt.scale[s][None, :, None] * parts[:, :, list(g)].sum(axis=2) for g, s in shifted
-        )
-        return (first, nxt.state[:, :1]), None
-    total = 0.0
-    for g, s in shifted:
-        factors, dense = _tail(made, j + 1, s, lattice)
-        rest = dense if dense is not None else _outer(factors)
-        total = total + _outer([parts[:, :, list(g)].sum(axis=2), rest])
-    return None, total
-
-
 def joint_waits(made, lattice: RateLattice, k: int) -> Joint:
     """Joint weights of a step's inputs at the first ``k`` lattice rates.
+
+    Worked out from the last input backwards: the joint weights ``W_j`` of inputs
+    j..n, with input j taken at rate r, are ``sum_m D_m H_j(r) (x) W_{j+1}(r + a_m)``,
+    evaluated once at every point input j is needed at (equal ``a_m`` grouped).
 
     Parameters
     ----------
@@ -366,15 +355,43 @@ def joint_waits(made, lattice: RateLattice, k: int) -> Joint:
     -------
     Joint, rows N (the largest of the inputs'), K = k
     """
-    top = int(lattice.levels[k - 1]) if lattice.grows else 0
+    n = len(made)
+    if not lattice.grows:  # perfect memories: waits change nothing
+        return Joint(tuple(h.state[:, :1] for h in made), None)
+    top = int(lattice.levels[k - 1])
+    sizes = [lattice.size(top + j) for j in range(n)]
     for j, h in enumerate(made):
-        need = lattice.size(top + j) if lattice.grows else 1
-        if h.state.shape[1] < need:
+        if h.state.shape[1] < sizes[j]:
             raise ValueError(
-                f"input {j} in making order holds {h.state.shape[1]} rates, the step needs {need}"
+                f"input {j} in making order holds {h.state.shape[1]} rates, "
+                f"the step needs {sizes[j]}"
             )
-    factors, dense = _tail(made, 0, np.arange(k), lattice)
-    return Joint(factors, dense)
+    last = made[-1]
+    j = n - 2
+    here = made[j].state[:, : sizes[j]]
+    shift = lattice.group_shift[: sizes[j]]
+    if last.scale is not None:
+        # the last input's state does not depend on its time: a product
+        first = sum(
+            last.scale[shift[:, g]][None, :, None] * (here @ lattice.group_maps[g])
+            for g in range(shift.shape[1])
+        )
+        if n == 2:
+            return Joint((first, last.state[:, :1]), None)
+        tail = _outer([first, last.state[:, :1]])
+    else:
+        tail = sum(
+            _outer([here @ lattice.group_maps[g], last.state[:, shift[:, g]]])
+            for g in range(shift.shape[1])
+        )
+    for j in range(n - 3, -1, -1):
+        here = made[j].state[:, : sizes[j]]
+        shift = lattice.group_shift[: sizes[j]]
+        tail = sum(
+            _outer([here @ lattice.group_maps[g], tail[:, shift[:, g]]])
+            for g in range(shift.shape[1])
+        )
+    return Joint(None, tail)
 
 
 def run_attempt(circuit, joint: Joint, order, rotations, bound: BoundNoise) -> np.ndarray:

@@ -338,7 +338,7 @@ def expand_chunk(arrays: dict, profile, codes, options: dict) -> dict:
     for lo in range(0, len(parent), BATCH):
         par = parent[lo : lo + BATCH]
         cod = code[lo : lo + BATCH]
-        out, success = advance(chains.take(par), cod, profile)
+        out, success = advance(chains, cod, profile, parent=par)
         pos = position[cod]
         batch, new_codes, rows = add_twirled(out, cod, want_base[pos], want_twirl[pos], p1)
         ok = success[rows] > 0
