@@ -408,10 +408,14 @@ def run_attempt(circuit, joint: Joint, order, rotations, bound: BoundNoise) -> n
     rotations = tuple(r if np.ndim(r) == 0 else np.repeat(r, k) for r in rotations)
     if joint.dense is not None:
         size = len(order)
-        j = joint.dense.reshape((n * k,) + (4,) * size)
+        flat = joint.dense.reshape(n * k, -1)
+        # normalised first: at high rates the weights can be far below the smallest double
+        total = flat.sum(axis=1)
+        safe = np.where(total > 0, total, 1.0)
+        j = (flat / safe[:, None]).reshape((n * k,) + (4,) * size)
         j = np.moveaxis(j, tuple(range(1, size + 1)), tuple(1 + r for r in order))
         success, kept = run_joint(circuit, j, rotations, **bound.step)
-        return (kept * success[:, None]).reshape(n, k, 4)
+        return (kept * (success * total)[:, None]).reshape(n, k, 4)
     by_role = [None] * len(order)
     for f, role in zip(joint.factors, order, strict=True):
         # one pair for every row and rate (a raw pair) goes in as one (4,) vector
