@@ -21,8 +21,9 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 from itertools import product
+from types import SimpleNamespace
 
 import numpy as np
 
@@ -46,7 +47,8 @@ LINEAR_ROUNDS: tuple[Round, ...] = _linear_rounds()
 N_CODES = len(LINEAR_ROUNDS)
 # rows per chunk in advance(): bounds the joint weights of double selection in memory
 CHUNK_ROWS = 65536
-# below this many rows per code on average, per-row rotations beat grouping by code
+# below this many rows (times rates) per code on average, per-row rotations beat
+# grouping by code
 SMALL_GROUPS = 24
 _CODE_OF = {r: i for i, r in enumerate(LINEAR_ROUNDS)}
 # decoding tables, indexed by code
@@ -198,22 +200,32 @@ def start_chains(profile, n: int, *, rounds_ahead: int = 0) -> ChainBatch:
     )
 
 
-def _lattice(chains: ChainBatch, bound):
-    """The rate lattice of the chains' waiting data and the number of output rates."""
+def _lattice(chains: ChainBatch, bound, out_level=None):
+    """A rate lattice holding everything a round needs, and the number of output rates."""
     size = chains.weighted.shape[1]
     if not bound.lattice(0).grows:
         return bound.lattice(0), 1
     top = 0
     while bound.lattice(top).size(top) < size:
         top += 1
-    lattice = bound.lattice(top)
-    level = lattice.level_of(size)
-    if level < WIDEST - 1:
-        raise ValueError(
-            f"these chains carry waiting data for {level // (WIDEST - 1)} more rounds; "
-            "start them with start_chains(profile, n, rounds_ahead=...) large enough"
-        )
-    return lattice, lattice.size(level - (WIDEST - 1))
+    level = bound.lattice(top).level_of(size)
+    if out_level is None:
+        out_level = level - (WIDEST - 1)
+        if out_level < 0:
+            raise ValueError(
+                f"these chains carry waiting data for {level // (WIDEST - 1)} more rounds; "
+                "start them with start_chains(profile, n, rounds_ahead=...) large enough"
+            )
+    lattice = bound.lattice(max(level, out_level + WIDEST - 1))
+    return lattice, lattice.size(out_level)
+
+
+def _concat(batches) -> ChainBatch:
+    if len(batches) == 1:
+        return batches[0]
+    return ChainBatch(
+        *[np.concatenate([getattr(b, f.name) for b in batches]) for f in fields(ChainBatch)]
+    )
 
 
 def _check_codes(codes, low: int) -> np.ndarray:
@@ -244,7 +256,9 @@ def _made(chains: ChainBatch, same: bool, n_inputs: int, bound, lattice) -> list
     return [chains.timed] + [sacrificed] * (n_inputs - 1)
 
 
-def advance(chains: ChainBatch, codes, profile, *, parent=None) -> tuple[ChainBatch, np.ndarray]:
+def advance(
+    chains: ChainBatch, codes, profile, *, parent=None, level=None
+) -> tuple[ChainBatch, np.ndarray]:
     """Apply round ``codes[i]`` to chain ``i`` for every i at once.
 
     Parameters
@@ -258,6 +272,11 @@ def advance(chains: ChainBatch, codes, profile, *, parent=None) -> tuple[ChainBa
         (M,)): the same as ``advance(chains.take(parent), codes, profile)``, but the
         joint waits of a chain's inputs are worked out once per chain, kind of
         step and kind of sacrificed pair, whatever the number of its codes.
+    level : int, optional
+        Level of the rate lattice the output carries (default: one round's worth,
+        ``WIDEST - 1`` levels, fewer than the input); a round needs its kept pair
+        up to this level and, when its sacrificed pairs are copies, up to this
+        level plus the number of sacrificed pairs.
 
     Returns
     -------
@@ -288,7 +307,7 @@ def advance(chains: ChainBatch, codes, profile, *, parent=None) -> tuple[ChainBa
         if codes.shape != parent.shape or parent.ndim != 1:
             raise ValueError(f"codes has shape {codes.shape}; expected {parent.shape}, as parent")
     bound = profile.bound()
-    lattice, k = _lattice(chains, bound)
+    lattice, k = _lattice(chains, bound, level)
     branch = np.empty((n, k, 4))
     # rows sorted by code, then taken in chunks (bounded memory), each chunk
     # grouped by kind of step and of sacrificed pair (their waits are shared),
@@ -315,7 +334,8 @@ def _attempts(kind, joint, group, group_codes, bound, branch):
     """Success branches of ``group`` (sorted by code), written into ``branch[group]``."""
     distinct, starts = np.unique(group_codes, return_index=True)
     order = tuple(range(kind.n_inputs))
-    if group.size < SMALL_GROUPS * distinct.size:
+    rates = joint.dense.shape[1] if joint.dense is not None else joint.factors[0].shape[1]
+    if group.size * rates < SMALL_GROUPS * distinct.size:
         # many codes with few rows each: one call with per-row rotations
         rot = CODE_ROTATIONS[group_codes]
         rotations = tuple(rot[:, j] for j in range(kind.n_inputs))
@@ -442,26 +462,68 @@ def evaluate_linear(codes, profile) -> dict:
     if depth > 1 and np.any(padding[:, :-1] & ~padding[:, 1:]):
         row = int(np.flatnonzero(np.any(padding[:, :-1] & ~padding[:, 1:], axis=1))[0])
         raise ValueError(f"codes[{row}] = {codes[row].tolist()}: -1 may only pad the end of a row")
-    level = start_chains(profile, 1, rounds_ahead=depth)
-    final = start_chains(profile, n)
+    bound = profile.bound()
+    safe_codes = np.maximum(codes, 0)
+    # levels each round adds to what its kept pair must carry: copies are made
+    # after the kept pair, raw pairs do not need the kept pair's waiting data
+    extra = np.where(~padding & CODE_SAME[safe_codes], CODE_N_INPUTS[safe_codes] - 1, 0)
+    if not bound.lattice(0).grows:
+        extra[:] = 0
+    # carry[:, d]: level the pair made by the first d rounds must carry
+    carry = np.zeros((n, depth + 1), dtype=np.intp)
+    carry[:, :depth] = np.cumsum(extra[:, ::-1], axis=1)[:, ::-1]
+    start = start_chains(profile, 1)
+    raw = bound.raw_weighted(int(carry[:, 0].max()) if n else 0)
+    groups = [replace(start, weighted=raw.state.copy(), deficit=raw.deficit.copy())]
+    final = {
+        "bell": np.tile(profile.raw, (n, 1)),
+        "raw_pairs": np.ones(n),
+        "memory": np.ones(n, dtype=np.int64),
+        "rounds": np.zeros(n, dtype=np.int64),
+        "time_s": np.full(n, bound.raw_time_s),
+    }
     success = np.full((n, depth), np.nan)
-    parent = np.zeros(n, dtype=np.int64)
+    # each running recipe's prefix: a group (one level of waiting data) and a row in it
+    group = np.zeros(n, dtype=np.intp)
+    parent = np.zeros(n, dtype=np.intp)
     for d in range(depth):
         active = ~padding[:, d]
         if not active.any():
             break
-        key = parent[active] * N_CODES + codes[active, d]
-        unique, inverse = np.unique(key, return_inverse=True)
-        level, p = advance(level, unique % N_CODES, profile, parent=unique // N_CODES)
         rows = np.flatnonzero(active)
-        success[rows, d] = p[inverse]
+        offsets = np.cumsum([0] + [len(g) for g in groups])
+        key = (offsets[group[rows]] + parent[rows]) * N_CODES + codes[rows, d]
+        unique, inverse = np.unique(key, return_inverse=True)
+        inverse = inverse.ravel()
+        u_group = np.searchsorted(offsets, unique // N_CODES, side="right") - 1
+        u_parent = unique // N_CODES - offsets[u_group]
+        need = np.zeros(unique.size, dtype=np.intp)
+        np.maximum.at(need, inverse, carry[rows, d + 1])
+        p_u = np.empty(unique.size)
+        new_groups, new_group, new_index = [], np.empty_like(need), np.empty_like(need)
+        for lv in np.unique(need):
+            pieces, chosen = [], []
+            for g in np.unique(u_group[need == lv]):
+                sel = np.flatnonzero((need == lv) & (u_group == g))
+                out, p_u[sel] = advance(
+                    groups[g], unique[sel] % N_CODES, profile, parent=u_parent[sel], level=int(lv)
+                )
+                pieces.append(out)
+                chosen.append(sel)
+            chosen = np.concatenate(chosen)
+            new_group[chosen] = len(new_groups)
+            new_index[chosen] = np.arange(chosen.size)
+            new_groups.append(_concat(pieces))
+        success[rows, d] = p_u[inverse]
         ends = padding[rows, d + 1] if d + 1 < depth else np.ones(rows.size, dtype=bool)
-        done = rows[ends]
-        picked = level.take(inverse[ends])
-        for name in ("bell", "raw_pairs", "memory", "rounds", "time_s"):
-            getattr(final, name)[done] = getattr(picked, name)
-        parent = np.zeros(n, dtype=np.int64)
-        parent[rows] = inverse
+        for g, batch in enumerate(new_groups):
+            here = ends & (new_group[inverse] == g)
+            for name in final:
+                final[name][rows[here]] = getattr(batch, name)[new_index[inverse[here]]]
+        groups = new_groups
+        group[rows] = new_group[inverse]
+        parent[rows] = new_index[inverse]
+    final = SimpleNamespace(**final)
     with np.errstate(divide="ignore"):
         pair_yield = np.where(np.isfinite(final.raw_pairs), 1.0 / final.raw_pairs, 0.0)
     return {

@@ -359,6 +359,11 @@ def joint_waits(made, lattice: RateLattice, k: int) -> Joint:
     if not lattice.grows:  # perfect memories: waits change nothing
         return Joint(tuple(h.state[:, :1] for h in made), None)
     top = int(lattice.levels[k - 1])
+    if top + n - 1 > lattice.levels[-1]:
+        raise ValueError(
+            f"the rate lattice reaches level {lattice.levels[-1]}; "
+            f"a step with {n} inputs needs {top + n - 1}"
+        )
     sizes = [lattice.size(top + j) for j in range(n)]
     for j, h in enumerate(made):
         if h.state.shape[1] < sizes[j]:

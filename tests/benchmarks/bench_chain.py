@@ -12,7 +12,9 @@ T1) and the same profile with perfect memories (best of a few repeats, one threa
 2. ``advance`` and ``advance_every`` in the exhaustive-search pattern (distinct
    states x all codes) at the last depth, in rows per second;
 3. the same one depth earlier, where the states carry the waiting data of one
-   more round.
+   more round;
+4. a whole exhaustive search (``optimise.exhaustive.exhaustive_front``, one process)
+   of every linear recipe up to ``--exhaustive`` rounds.
 
 and the ratio perfect / memory of each. The script runs unchanged on older
 checkouts whose ``start_chains`` takes no ``rounds_ahead`` and whose ``advance``
@@ -112,6 +114,12 @@ def measure(profile, args) -> dict:
         every_s, _ = best_of(args.repeats, lambda: advance_every(chains, all_codes, profile))
         figures[f"advance rows/s, {label}"] = len(tiled) / grid_s
         figures[f"advance_every rows/s, {label}"] = len(tiled) / every_s
+    if args.exhaustive:
+        from optimise.exhaustive import exhaustive_front
+
+        figures[f"exhaustive_front depth {args.exhaustive} s"], _ = best_of(
+            1, lambda: exhaustive_front(profile, max_depth=args.exhaustive, count_last=False)
+        )
     return figures
 
 
@@ -121,6 +129,9 @@ def main(argv=None) -> int:
     parser.add_argument("--depth", type=int, default=4)
     parser.add_argument("--states", type=int, default=200)
     parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument(
+        "--exhaustive", type=int, default=2, help="depth of an exhaustive search to time (0: none)"
+    )
     args = parser.parse_args(argv)
     memory = measure(MEMORY, args)
     perfect = measure(PERFECT, args)
