@@ -404,7 +404,8 @@ def _finish(chains, codes, branch, bound, lattice) -> tuple[ChainBatch, np.ndarr
     sacrificed = np.where(same[:, None], own, raw.deficit[:, :k])
     deficit = joint_deficit([own])
     for i in range(WIDEST - 1):
-        deficit = np.where((n_sacrificed > i)[:, None], joint_deficit([deficit, sacrificed]), deficit)
+        more = joint_deficit([deficit, sacrificed])
+        deficit = np.where((n_sacrificed > i)[:, None], more, deficit)
     success, weighted = retry(branch, deficit, bound, lattice, twirled=CODE_TWIRL[codes])
     cost = chains.raw_pairs + n_sacrificed * np.where(same, chains.raw_pairs, 1.0)
     time_s = chains.time_s + n_sacrificed * np.where(same, chains.time_s, bound.raw_time_s)

@@ -71,16 +71,17 @@ def levels_needed(recipe: Recipe, level: int = 0):
         Level of round i's sacrificed pairs (raw pairs, copies or the source's output).
     """
     rounds = recipe.rounds
-    memory = [1]
+    inputs = []  # memory needs of each round's inputs, kept pair first
+    memory = 1
     for r in rounds:
-        memory.append(memory_needed([memory[-1]] + [_sacrificed_memory(r, memory[-1])] * (r.n_inputs - 1)))
+        inputs.append([memory] + [_sacrificed_memory(r, memory)] * (r.n_inputs - 1))
+        memory = memory_needed(inputs[-1])
     prefix = [0] * (len(rounds) + 1)
     prefix[-1] = level
     sacrificed = [0] * len(rounds)
     for i in reversed(range(len(rounds))):
         r = rounds[i]
-        order = making_order([memory[i]] + [_sacrificed_memory(r, memory[i])] * (r.n_inputs - 1))
-        position = {role: j for j, role in enumerate(order)}
+        position = {role: j for j, role in enumerate(making_order(inputs[i]))}
         sacrificed[i] = prefix[i + 1] + max(position[j] for j in range(1, r.n_inputs))
         prefix[i] = prefix[i + 1] + position[0]
         if r.sacrificed == "same":

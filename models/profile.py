@@ -73,7 +73,7 @@ class Profile:
         return self.length_km / FIBRE_SPEED_KM_S
 
     def bound(self):
-        """What every step needs, worked out once per profile (:class:`models.waiting.BoundNoise`)."""
+        """What every step needs, worked out once (:class:`models.waiting.BoundNoise`, cached)."""
         from .waiting import bind
 
         return bind(self)

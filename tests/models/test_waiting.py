@@ -20,7 +20,6 @@ import sys
 
 import numpy as np
 import pytest
-from numpy.testing import assert_allclose
 
 from models import NodeNoise, Profile, Recipe, evaluate, parse_recipe
 from models.noise import store

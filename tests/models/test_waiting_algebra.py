@@ -48,8 +48,8 @@ def _arrivals(pair, lattice, level, separable):
     r = PROFILE.pair_rate_hz
     s = lattice.rates[: lattice.size(level)]
     scale = r / (r + s)
-    return Weighted(pair[None, None, :] * scale[None, :, None], (s / (r + s))[None],
-                    scale if separable else None)
+    state = pair[None, None, :] * scale[None, :, None]
+    return Weighted(state, (s / (r + s))[None], scale if separable else None)
 
 
 def _dense(joint):
@@ -110,9 +110,7 @@ def test_three_inputs_against_quadrature(separable):
 
 
 def test_retries_follow_the_geometric_generating_function():
-    profile = Profile(
-        PROFILE.raw_pair, PROFILE.noise, length_km=300.0, pair_rate_hz=math.inf
-    )
+    profile = Profile(PROFILE.raw_pair, PROFILE.noise, length_km=300.0, pair_rate_hz=math.inf)
     chains = start_chains(profile, 1, rounds_ahead=2)
     out, p = advance(chains, [round_code(Round("single", "raw", "Y"))], profile)
     bound = profile.bound()
