@@ -81,11 +81,15 @@ def _random_codes(rng, n, depth):
     return codes
 
 
-@pytest.mark.parametrize("seed, instant", [(1, False), (2, False), (3, True)])
-def test_batch_agrees_with_single_evaluation(seed, instant):
+@pytest.mark.parametrize(
+    "seed, instant, n, depth",
+    # the last: long recipes, whose prefixes carry many rates of waiting data
+    [(1, False, 120, 4), (2, False, 120, 4), (3, True, 120, 4), (21, False, 6, 8)],
+)
+def test_batch_agrees_with_single_evaluation(seed, instant, n, depth):
     rng = np.random.default_rng(seed)
     profile = random_profile(rng, instant=instant)
-    codes = _random_codes(rng, 120, 4)
+    codes = _random_codes(rng, n, depth)
     out = evaluate_linear(codes, profile)
     for i, row in enumerate(codes):
         res = evaluate(recipe_from_codes(row), profile, canonicalise=False)
