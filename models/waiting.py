@@ -405,6 +405,13 @@ def run_attempt(circuit, joint: Joint, order, rotations, bound: BoundNoise) -> n
     ``order`` gives the role (0 kept, then sacrificed) of each input in making
     order; ``rotations`` are in role order, ints or (N,) arrays.
     """
+    if joint.dense is None and len(joint.factors) > 2:
+        # three or more factors: one matrix product on the joint weights beats
+        # the label-by-label sums of a product
+        n = max(f.shape[0] for f in joint.factors)
+        k = max(f.shape[1] for f in joint.factors)
+        factors = [np.broadcast_to(f, (f.shape[0], k, 4)) for f in joint.factors]
+        joint = Joint(None, np.broadcast_to(_outer(factors), (n, k, 4 ** len(factors))))
     if joint.dense is not None:
         n, k = joint.dense.shape[:2]
     else:
