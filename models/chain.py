@@ -172,6 +172,7 @@ class ChainBatch:
 
     @property
     def timed(self) -> Weighted:
+        """The time-weighted states as the waiting module takes them."""
         return Weighted(self.weighted, self.deficit)
 
 

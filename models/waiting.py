@@ -71,16 +71,6 @@ def _decay_basis() -> np.ndarray:
 DECAY_BASIS = _decay_basis()
 
 
-def decay_parts(pair) -> np.ndarray:
-    """The parts of stored pairs that decay with each exponential, shape (..., 4, 4).
-
-    ``parts[..., m, :]`` decays as ``exp(-a_m t)``: a wait t maps ``pair`` to
-    ``sum_m exp(-a_m t) parts[..., m, :]`` (exact pair-level Bell projection of
-    amplitude damping and dephasing, :func:`models.noise.store_with_decays`).
-    """
-    return np.einsum("...i,mij->...mj", np.asarray(pair, dtype=float), DECAY_BASIS)
-
-
 def decay_rates(noise) -> np.ndarray:
     """The rates a_m (1/s) of :data:`DECAY_BASIS`: ``(0, 2/T2, 1/T1, 2/T1)``, shape (4,)."""
     return np.array([0.0, 2.0 / noise.t2_s, 1.0 / noise.t1_s, 2.0 / noise.t1_s])
@@ -227,12 +217,6 @@ class Weighted:
     deficit: np.ndarray
     scale: np.ndarray | None = None
 
-    def take(self, index) -> Weighted:
-        """The pairs at ``index``; a broadcast single row stays as it is."""
-        if self.state.shape[0] == 1:
-            return self
-        return Weighted(self.state[index], self.deficit[index], self.scale)
-
 
 @dataclass(frozen=True, eq=False)
 class BoundNoise:
@@ -257,6 +241,8 @@ class BoundNoise:
         R (``inf``: instant).
     raw_time_s : float
         Mean time to receive a raw pair, 1/R.
+    noise : NodeNoise
+        The profile's noise, from which rate lattices are built.
     """
 
     step: dict
@@ -321,6 +307,7 @@ class Joint:
     dense: np.ndarray | None
 
     def take(self, index) -> Joint:
+        """The joint weights of rows ``index``."""
         if self.dense is not None:
             return Joint(None, self.dense[index])
         # per-row factors are taken; one broadcast row (a raw pair) stays as it is
