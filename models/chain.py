@@ -21,20 +21,15 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 from itertools import product
+from types import SimpleNamespace
 
 import numpy as np
 
-from .evaluate import (
-    finish_step,
-    made_joint,
-    raw_pair_figures,
-    wait_for,
-)
 from .kinds import STEP_KINDS
 from .recipes import Recipe, Round
-from .steps import DOUBLE_SELECTION, TWO_TO_ONE, run_joint, run_step
+from .waiting import Weighted, joint_deficit, joint_waits, retry, run_attempt
 
 
 def _linear_rounds() -> tuple[Round, ...]:
@@ -52,11 +47,16 @@ LINEAR_ROUNDS: tuple[Round, ...] = _linear_rounds()
 N_CODES = len(LINEAR_ROUNDS)
 # rows per chunk in advance(): bounds the joint weights of double selection in memory
 CHUNK_ROWS = 65536
-# below this many rows per code on average, per-row rotations beat grouping by code
+# below this many rows (times rates) per code on average, per-row rotations beat
+# grouping by code
 SMALL_GROUPS = 24
 _CODE_OF = {r: i for i, r in enumerate(LINEAR_ROUNDS)}
 # decoding tables, indexed by code
 CODE_DOUBLE = np.array([r.selection == "double" for r in LINEAR_ROUNDS])
+CODE_SELECTION = np.array([r.selection for r in LINEAR_ROUNDS])
+CODE_N_INPUTS = np.array([r.n_inputs for r in LINEAR_ROUNDS], dtype=np.intp)
+# the most inputs of any kind: a chain's waiting data shrink by WIDEST - 1 levels per round
+WIDEST = max(kind.n_inputs for kind in STEP_KINDS.values())
 CODE_SAME = np.array([r.sacrificed == "same" for r in LINEAR_ROUNDS])
 CODE_TWIRL = np.array([r.twirl for r in LINEAR_ROUNDS])
 CODE_ROTATIONS = np.array(
@@ -88,7 +88,14 @@ def linear_codes(recipe) -> tuple[int, ...]:
     """Codes of the rounds of a linear recipe (Recipe or string), first round first."""
     from .notation import as_recipe
 
-    return tuple(round_code(r) for r in as_recipe(recipe).rounds)
+    recipe = as_recipe(recipe)
+    if recipe.raw_twirl:
+        # the chain starts from the raw pair as delivered; a twirled start has no code
+        raise ValueError(
+            f"recipe {recipe.notation!r} twirls its raw pairs ('~' in front); "
+            "only recipes on untwirled raw pairs have round codes"
+        )
+    return tuple(round_code(r) for r in recipe.rounds)
 
 
 def recipe_from_codes(codes) -> Recipe:
@@ -108,7 +115,7 @@ def recipe_from_codes(codes) -> Recipe:
 
 @dataclass(frozen=True)
 class ChainBatch:
-    """N partial linear recipes: the pair each makes and what the next round needs.
+    """N partial linear recipes: the pair each makes and what the next rounds need.
 
     Attributes
     ----------
@@ -122,10 +129,12 @@ class ChainBatch:
         Communication rounds on the critical path.
     time_s : ndarray, shape (N,), float
         Mean production time of the pair, seconds.
-    laplace : ndarray, shape (N, 10), float
-        Laplace transform of the production time at the rates of
-        :func:`models.evaluate.memory_rates`: what a pair waiting for this one
-        decays with.
+    weighted : ndarray, shape (N, K, 4), float
+        Time-weighted state ``E[rho exp(-s T)]`` of the pair at the first K rates
+        of the profile's rate lattice (:mod:`models.waiting`): what the pairs
+        waiting for this one decay with. ``weighted[:, 0]`` equals ``bell``.
+    deficit : ndarray, shape (N, K), float
+        ``1 - sum(weighted)``, computed without cancellation.
     """
 
     bell: np.ndarray
@@ -133,7 +142,8 @@ class ChainBatch:
     memory: np.ndarray
     rounds: np.ndarray
     time_s: np.ndarray
-    laplace: np.ndarray
+    weighted: np.ndarray
+    deficit: np.ndarray
 
     def __post_init__(self):
         n = np.shape(self.bell)[0] if np.ndim(self.bell) == 2 else -1
@@ -144,8 +154,13 @@ class ChainBatch:
                 raise ValueError(
                     f"{name} has shape {np.shape(getattr(self, name))}; expected ({n},)"
                 )
-        if np.shape(self.laplace) != (n, 10):
-            raise ValueError(f"laplace has shape {np.shape(self.laplace)}; expected ({n}, 10)")
+        shape = np.shape(self.weighted)
+        if len(shape) != 3 or shape[0] != n or shape[2] != 4 or shape[1] < 1:
+            raise ValueError(f"weighted has shape {shape}; expected ({n}, K, 4)")
+        if np.shape(self.deficit) != shape[:2]:
+            raise ValueError(
+                f"deficit has shape {np.shape(self.deficit)}; expected {shape[:2]}"
+            )
 
     def __len__(self) -> int:
         return self.bell.shape[0]
@@ -158,22 +173,66 @@ class ChainBatch:
             self.memory[index],
             self.rounds[index],
             self.time_s[index],
-            self.laplace[index],
+            self.weighted[index],
+            self.deficit[index],
         )
 
+    @property
+    def timed(self) -> Weighted:
+        """The time-weighted states as the waiting module takes them."""
+        return Weighted(self.weighted, self.deficit)
 
-def start_chains(profile, n: int) -> ChainBatch:
-    """``n`` chains that have made one raw pair each (no round yet)."""
+
+def start_chains(profile, n: int, *, rounds_ahead: int = 0) -> ChainBatch:
+    """``n`` chains that have made one raw pair each (no round yet).
+
+    ``rounds_ahead``: how many rounds will be applied at most; the chains carry
+    their time-weighted states at the rates those rounds need (level
+    ``rounds_ahead * (WIDEST - 1)`` of the rate lattice; with perfect memories
+    one rate whatever the number).
+    """
     if not (isinstance(n, (int, np.integer)) and n >= 0):
         raise ValueError(f"n = {n!r} must be an integer >= 0")
-    time_s, laplace = raw_pair_figures(profile)
+    if not (isinstance(rounds_ahead, (int, np.integer)) and rounds_ahead >= 0):
+        raise ValueError(f"rounds_ahead = {rounds_ahead!r} must be an integer >= 0")
+    bound = profile.bound()
+    raw = bound.raw_weighted(int(rounds_ahead) * (WIDEST - 1))
     return ChainBatch(
         np.tile(profile.raw, (n, 1)),
         np.ones(n),
         np.ones(n, dtype=np.int64),
         np.zeros(n, dtype=np.int64),
-        np.full(n, time_s),
-        np.tile(laplace, (n, 1)),
+        np.full(n, bound.raw_time_s),
+        np.repeat(raw.state, n, axis=0),
+        np.repeat(raw.deficit, n, axis=0),
+    )
+
+
+def _lattice(chains: ChainBatch, bound, out_level=None):
+    """A rate lattice holding everything a round needs, and the number of output rates."""
+    size = chains.weighted.shape[1]
+    if not bound.lattice(0).grows:
+        return bound.lattice(0), 1
+    top = 0
+    while bound.lattice(top).size(top) < size:
+        top += 1
+    level = bound.lattice(top).level_of(size)
+    if out_level is None:
+        out_level = level - (WIDEST - 1)
+        if out_level < 0:
+            raise ValueError(
+                f"these chains carry waiting data for {level // (WIDEST - 1)} more rounds; "
+                "start them with start_chains(profile, n, rounds_ahead=...) large enough"
+            )
+    lattice = bound.lattice(max(level, out_level + WIDEST - 1))
+    return lattice, lattice.size(out_level)
+
+
+def _concat(batches) -> ChainBatch:
+    if len(batches) == 1:
+        return batches[0]
+    return ChainBatch(
+        *[np.concatenate([getattr(b, f.name) for b in batches]) for f in fields(ChainBatch)]
     )
 
 
@@ -192,7 +251,22 @@ def _check_codes(codes, low: int) -> np.ndarray:
     return c.astype(np.intp)
 
 
-def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]:
+def _made(chains: ChainBatch, same: bool, n_inputs: int, bound, lattice) -> list[Weighted]:
+    """Inputs in making order: the chain's pair, then the sacrificed pairs.
+
+    The kept pair needs at least as much memory as a sacrificed one (a copy or a
+    raw pair), so the order that needs the fewest qubits makes it first.
+    """
+    if same:
+        sacrificed = chains.timed
+    else:
+        sacrificed = bound.raw_weighted(int(lattice.levels[-1]))
+    return [chains.timed] + [sacrificed] * (n_inputs - 1)
+
+
+def advance(
+    chains: ChainBatch, codes, profile, *, parent=None, level=None
+) -> tuple[ChainBatch, np.ndarray]:
     """Apply round ``codes[i]`` to chain ``i`` for every i at once.
 
     Parameters
@@ -201,11 +275,21 @@ def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]
     codes : int array, shape (N,)
         Indices into :data:`LINEAR_ROUNDS`.
     profile : models.Profile
+    parent : int array, shape (M,), optional
+        Apply ``codes[i]`` to chain ``parent[i]`` instead (``codes`` then has shape
+        (M,)): the same as ``advance(chains.take(parent), codes, profile)``, but the
+        joint waits of a chain's inputs are worked out once per chain, kind of
+        step and kind of sacrificed pair, whatever the number of its codes.
+    level : int, optional
+        Level of the rate lattice the output carries (default: one round's worth,
+        ``WIDEST - 1`` levels, fewer than the input); a round needs its kept pair
+        up to this level and, when its sacrificed pairs are copies, up to this
+        level plus the number of sacrificed pairs.
 
     Returns
     -------
     chains : ChainBatch
-        The N chains one round longer.
+        The N chains one round longer (their waiting data one round shorter).
     success : ndarray, shape (N,)
         Success probability of the round's step.
 
@@ -220,29 +304,64 @@ def advance(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]
     (0.68, 0.735294, 2)
     """
     codes = _check_codes(codes, 0)
-    n = len(chains)
-    if codes.shape != (n,):
-        raise ValueError(f"codes has shape {codes.shape}; expected ({n},), one per chain")
-    s = _sacrificed(chains, CODE_SAME[codes], profile)
-    success = np.empty(n)
-    kept = np.empty((n, 4))
+    if parent is None:
+        n = len(chains)
+        if codes.shape != (n,):
+            raise ValueError(f"codes has shape {codes.shape}; expected ({n},), one per chain")
+        parent = np.arange(n)
+    else:
+        parent = np.asarray(parent, dtype=np.intp)
+        n = parent.size
+        if codes.shape != parent.shape or parent.ndim != 1:
+            raise ValueError(f"codes has shape {codes.shape}; expected {parent.shape}, as parent")
+    bound = profile.bound()
+    lattice, k = _lattice(chains, bound, level)
+    branch = np.empty((n, k, 4))
     # rows sorted by code, then taken in chunks (bounded memory), each chunk
-    # grouped by code: a step with scalar rotations is much faster
+    # grouped by kind of step and of sacrificed pair (their waits are shared),
+    # then by code: a step with scalar rotations is much faster
     order = np.argsort(codes, kind="stable")
-    for lo in range(0, n, CHUNK_ROWS):
-        rows = order[lo : lo + CHUNK_ROWS]
-        _step_rows(
-            rows, codes[rows], chains.bell, s["bell"], s["laplace"], profile.noise, success, kept
-        )
-    return _finish(chains, codes, s, success, kept, profile), success
+    chunk = max(1, CHUNK_ROWS // k)
+    for lo in range(0, n, chunk):
+        rows = order[lo : lo + chunk]
+        row_codes = codes[rows]
+        for selection, kind in STEP_KINDS.items():
+            for same in (False, True):
+                mask = (CODE_SELECTION[row_codes] == selection) & (CODE_SAME[row_codes] == same)
+                if not mask.any():
+                    continue
+                group, group_codes = rows[mask], row_codes[mask]
+                states, inverse = np.unique(parent[group], return_inverse=True)
+                made = _made(chains.take(states), same, kind.n_inputs, bound, lattice)
+                joint = joint_waits(made, lattice, k).take(inverse.ravel())
+                _attempts(kind, joint, group, group_codes, bound, branch)
+    return _finish(chains.take(parent), codes, branch, bound, lattice)
+
+
+def _attempts(kind, joint, group, group_codes, bound, branch):
+    """Success branches of ``group`` (sorted by code), written into ``branch[group]``."""
+    distinct, starts = np.unique(group_codes, return_index=True)
+    order = tuple(range(kind.n_inputs))
+    rates = joint.dense.shape[1] if joint.dense is not None else joint.factors[0].shape[1]
+    if group.size * rates < SMALL_GROUPS * distinct.size:
+        # many codes with few rows each: one call with per-row rotations
+        rot = CODE_ROTATIONS[group_codes]
+        rotations = tuple(rot[:, j] for j in range(kind.n_inputs))
+        branch[group] = run_attempt(kind.circuit, joint, order, rotations, bound)
+        return
+    bounds = np.append(starts, group.size)
+    for code, lo, hi in zip(distinct, bounds[:-1], bounds[1:], strict=True):
+        part = joint.take(slice(lo, hi))
+        rotations = LINEAR_ROUNDS[code].rotations
+        branch[group[lo:hi]] = run_attempt(kind.circuit, part, order, rotations, bound)
 
 
 def advance_every(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]:
     """Apply every round of ``codes`` to every chain (what an exhaustive search needs).
 
     Equal to ``advance(chains.take(np.repeat(range(S), C)), np.tile(codes, S), profile)``
-    but faster: the waits of a chain's inputs are worked out once per chain and
-    kind of sacrificed pair, not once per code.
+    but faster: the joint waits of a chain's inputs are worked out once per chain,
+    kind of step and kind of sacrificed pair, not once per code.
 
     Parameters
     ----------
@@ -257,117 +376,61 @@ def advance_every(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.nd
     """
     codes = _check_codes(codes, 0).ravel()
     n_states, n_codes = len(chains), codes.size
-    noise = profile.noise
-    success = np.empty((n_states, n_codes))
-    kept = np.empty((n_states, n_codes, 4))
-    params = dict(
-        two_qubit=noise.two_qubit, single_qubit=noise.single_qubit, measurement=noise.measurement
-    )
-    step = max(1, CHUNK_ROWS // 64)
+    bound = profile.bound()
+    lattice, k = _lattice(chains, bound)
+    branch = np.empty((n_states, n_codes, k, 4))
+    step = max(1, CHUNK_ROWS // (64 * k))
     for lo in range(0, n_states, step):
         part = chains.take(np.arange(lo, min(lo + step, n_states)))
-        prepared = {}
-        for same in (False, True):
-            s = _sacrificed(part, np.full(len(part), same), profile)
-            stored = wait_for(part.bell, s["laplace"])
-            joint = None
-            if CODE_DOUBLE[codes[CODE_SAME[codes] == same]].any():
-                joint = made_joint(
-                    part.bell, s["bell"], s["bell"], s["laplace"], s["laplace"], (0, 1, 2)
+        for selection, kind in STEP_KINDS.items():
+            for same in (False, True):
+                columns = np.flatnonzero(
+                    (CODE_SELECTION[codes] == selection) & (CODE_SAME[codes] == same)
                 )
-            prepared[same] = (s["bell"], stored, joint)
-        for c, code in enumerate(codes):
-            r = LINEAR_ROUNDS[code]
-            s_bell, stored, joint = prepared[r.sacrificed == "same"]
-            if r.selection == "single":
-                p, k = run_step(TWO_TO_ONE, (stored, s_bell), r.rotations, **params)
-            else:
-                p, k = run_joint(DOUBLE_SELECTION, joint, r.rotations, **params)
-            success[lo : lo + len(part), c] = p
-            kept[lo : lo + len(part), c] = k
+                if columns.size == 0:
+                    continue
+                made = _made(part, same, kind.n_inputs, bound, lattice)
+                joint = joint_waits(made, lattice, k)
+                order = tuple(range(kind.n_inputs))
+                for c in columns:
+                    rotations = LINEAR_ROUNDS[codes[c]].rotations
+                    branch[lo : lo + len(part), c] = run_attempt(
+                        kind.circuit, joint, order, rotations, bound
+                    )
     rows = chains.take(np.repeat(np.arange(n_states), n_codes))
     all_codes = np.tile(codes, n_states)
-    s = _sacrificed(rows, CODE_SAME[all_codes], profile)
-    success = success.reshape(-1)
-    return _finish(rows, all_codes, s, success, kept.reshape(-1, 4), profile), success
+    return _finish(rows, all_codes, branch.reshape(-1, k, 4), bound, lattice)
 
 
-def _sacrificed(chains: ChainBatch, same, profile) -> dict:
-    """Figures of the sacrificed pairs: fresh raw pairs, or independent copies of the chain."""
-    raw_time, raw_laplace = raw_pair_figures(profile)
-    return {
-        "bell": np.where(same[:, None], chains.bell, profile.raw),
-        "laplace": np.where(same[:, None], chains.laplace, raw_laplace),
-        "time_s": np.where(same, chains.time_s, raw_time),
-        "cost": np.where(same, chains.raw_pairs, 1.0),
-        "memory": np.where(same, chains.memory, 1),
-    }
-
-
-def _finish(chains, codes, s, success, kept, profile) -> ChainBatch:
-    """Exchange wait, re-twirl, costs, memory, times and Laplace transforms after the steps."""
-    n_sacrificed = np.where(CODE_DOUBLE[codes], 2, 1)
-    # the kept pair needs at least as much memory as a sacrificed one, so the
-    # best order makes it first, then the sacrificed pairs in order
-    memory = np.maximum(chains.memory, s["memory"] + n_sacrificed)
-    out, cost, time_s, laplace = finish_step(
-        kept,
-        success,
-        twirled=CODE_TWIRL[codes],
-        inputs_cost=chains.raw_pairs + n_sacrificed * s["cost"],
-        inputs_time_s=chains.time_s + n_sacrificed * s["time_s"],
-        inputs_laplace=chains.laplace * s["laplace"] ** n_sacrificed[:, None],
-        profile=profile,
+def _finish(chains, codes, branch, bound, lattice) -> tuple[ChainBatch, np.ndarray]:
+    """Retries, exchange wait, re-twirl, costs, memory and times after the attempts."""
+    k = branch.shape[1]
+    same = CODE_SAME[codes]
+    n_sacrificed = CODE_N_INPUTS[codes] - 1
+    raw = bound.raw_weighted(0 if not lattice.grows else int(lattice.levels[k - 1]))
+    own = chains.deficit[:, :k]
+    sacrificed = np.where(same[:, None], own, raw.deficit[:, :k])
+    deficit = joint_deficit([own])
+    for i in range(WIDEST - 1):
+        more = joint_deficit([deficit, sacrificed])
+        deficit = np.where((n_sacrificed > i)[:, None], more, deficit)
+    success, weighted = retry(branch, deficit, bound, lattice, twirled=CODE_TWIRL[codes])
+    cost = chains.raw_pairs + n_sacrificed * np.where(same, chains.raw_pairs, 1.0)
+    time_s = chains.time_s + n_sacrificed * np.where(same, chains.time_s, bound.raw_time_s)
+    ok = success > 0
+    safe = np.where(ok, success, 1.0)
+    # the kept pair is made first (see _made), then the sacrificed pairs in order
+    memory = np.maximum(chains.memory, np.where(same, chains.memory, 1) + n_sacrificed)
+    out = ChainBatch(
+        weighted.state[:, 0].copy(),
+        np.where(ok, cost / safe, np.inf),
+        memory.astype(np.int64),
+        chains.rounds + 1,
+        np.where(ok, (time_s + bound.delay_s) / safe, np.inf),
+        weighted.state,
+        weighted.deficit,
     )
-    return ChainBatch(out, cost, memory.astype(np.int64), chains.rounds + 1, time_s, laplace)
-
-
-def _step_rows(rows, row_codes, bell, s_bell, s_laplace, noise, success, kept):
-    """Steps of ``rows`` (sorted by code): fills ``success[rows]`` and ``kept[rows]``."""
-    double = CODE_DOUBLE[row_codes]
-    single_rows, double_rows = rows[~double], rows[double]
-    # waiting depends on the chain and the sacrificed pairs only, not on the rotations
-    stored = wait_for(bell[single_rows], s_laplace[single_rows])
-    joint = made_joint(
-        bell[double_rows],
-        s_bell[double_rows],
-        s_bell[double_rows],
-        s_laplace[double_rows],
-        s_laplace[double_rows],
-        (0, 1, 2),
-    )
-    params = dict(
-        two_qubit=noise.two_qubit, single_qubit=noise.single_qubit, measurement=noise.measurement
-    )
-    for group, codes_ in ((single_rows, row_codes[~double]), (double_rows, row_codes[double])):
-        if group.size == 0:
-            continue
-        distinct, starts = np.unique(codes_, return_index=True)
-        if group.size < SMALL_GROUPS * distinct.size:
-            # many codes with few rows each: one call with per-row rotations
-            rot = CODE_ROTATIONS[codes_]
-            if group is single_rows:
-                success[group], kept[group] = run_step(
-                    TWO_TO_ONE, (stored, s_bell[group]), (rot[:, 0], rot[:, 1]), **params
-                )
-            else:
-                success[group], kept[group] = run_joint(
-                    DOUBLE_SELECTION, joint, (rot[:, 0], rot[:, 1], rot[:, 2]), **params
-                )
-            continue
-        bounds = np.append(starts, group.size)
-        for code, lo, hi in zip(distinct, bounds[:-1], bounds[1:], strict=True):
-            r = LINEAR_ROUNDS[code]
-            target = group[lo:hi]
-            if r.selection == "single":
-                # the kept pair waited while the sacrificed pair was made
-                success[target], kept[target] = run_step(
-                    TWO_TO_ONE, (stored[lo:hi], s_bell[target]), r.rotations, **params
-                )
-            else:
-                success[target], kept[target] = run_joint(
-                    DOUBLE_SELECTION, joint[lo:hi], r.rotations, **params
-                )
+    return out, success
 
 
 def evaluate_linear(codes, profile) -> dict:
@@ -408,26 +471,68 @@ def evaluate_linear(codes, profile) -> dict:
     if depth > 1 and np.any(padding[:, :-1] & ~padding[:, 1:]):
         row = int(np.flatnonzero(np.any(padding[:, :-1] & ~padding[:, 1:], axis=1))[0])
         raise ValueError(f"codes[{row}] = {codes[row].tolist()}: -1 may only pad the end of a row")
-    level = start_chains(profile, 1)
-    final = start_chains(profile, n)
+    bound = profile.bound()
+    safe_codes = np.maximum(codes, 0)
+    # levels each round adds to what its kept pair must carry: copies are made
+    # after the kept pair, raw pairs do not need the kept pair's waiting data
+    extra = np.where(~padding & CODE_SAME[safe_codes], CODE_N_INPUTS[safe_codes] - 1, 0)
+    if not bound.lattice(0).grows:
+        extra[:] = 0
+    # carry[:, d]: level the pair made by the first d rounds must carry
+    carry = np.zeros((n, depth + 1), dtype=np.intp)
+    carry[:, :depth] = np.cumsum(extra[:, ::-1], axis=1)[:, ::-1]
+    start = start_chains(profile, 1)
+    raw = bound.raw_weighted(int(carry[:, 0].max()) if n else 0)
+    groups = [replace(start, weighted=raw.state.copy(), deficit=raw.deficit.copy())]
+    final = {
+        "bell": np.tile(profile.raw, (n, 1)),
+        "raw_pairs": np.ones(n),
+        "memory": np.ones(n, dtype=np.int64),
+        "rounds": np.zeros(n, dtype=np.int64),
+        "time_s": np.full(n, bound.raw_time_s),
+    }
     success = np.full((n, depth), np.nan)
-    parent = np.zeros(n, dtype=np.int64)
+    # each running recipe's prefix: a group (one level of waiting data) and a row in it
+    group = np.zeros(n, dtype=np.intp)
+    parent = np.zeros(n, dtype=np.intp)
     for d in range(depth):
         active = ~padding[:, d]
         if not active.any():
             break
-        key = parent[active] * N_CODES + codes[active, d]
-        unique, inverse = np.unique(key, return_inverse=True)
-        level, p = advance(level.take(unique // N_CODES), unique % N_CODES, profile)
         rows = np.flatnonzero(active)
-        success[rows, d] = p[inverse]
+        offsets = np.cumsum([0] + [len(g) for g in groups])
+        key = (offsets[group[rows]] + parent[rows]) * N_CODES + codes[rows, d]
+        unique, inverse = np.unique(key, return_inverse=True)
+        inverse = inverse.ravel()
+        u_group = np.searchsorted(offsets, unique // N_CODES, side="right") - 1
+        u_parent = unique // N_CODES - offsets[u_group]
+        need = np.zeros(unique.size, dtype=np.intp)
+        np.maximum.at(need, inverse, carry[rows, d + 1])
+        p_u = np.empty(unique.size)
+        new_groups, new_group, new_index = [], np.empty_like(need), np.empty_like(need)
+        for lv in np.unique(need):
+            pieces, chosen = [], []
+            for g in np.unique(u_group[need == lv]):
+                sel = np.flatnonzero((need == lv) & (u_group == g))
+                out, p_u[sel] = advance(
+                    groups[g], unique[sel] % N_CODES, profile, parent=u_parent[sel], level=int(lv)
+                )
+                pieces.append(out)
+                chosen.append(sel)
+            chosen = np.concatenate(chosen)
+            new_group[chosen] = len(new_groups)
+            new_index[chosen] = np.arange(chosen.size)
+            new_groups.append(_concat(pieces))
+        success[rows, d] = p_u[inverse]
         ends = padding[rows, d + 1] if d + 1 < depth else np.ones(rows.size, dtype=bool)
-        done = rows[ends]
-        picked = level.take(inverse[ends])
-        for name in ("bell", "raw_pairs", "memory", "rounds", "time_s", "laplace"):
-            getattr(final, name)[done] = getattr(picked, name)
-        parent = np.zeros(n, dtype=np.int64)
-        parent[rows] = inverse
+        for g, batch in enumerate(new_groups):
+            here = ends & (new_group[inverse] == g)
+            for name in final:
+                final[name][rows[here]] = getattr(batch, name)[new_index[inverse[here]]]
+        groups = new_groups
+        group[rows] = new_group[inverse]
+        parent[rows] = new_index[inverse]
+    final = SimpleNamespace(**final)
     with np.errstate(divide="ignore"):
         pair_yield = np.where(np.isfinite(final.raw_pairs), 1.0 / final.raw_pairs, 0.0)
     return {

@@ -72,6 +72,12 @@ class Profile:
         """One-way classical delay over the link, seconds."""
         return self.length_km / FIBRE_SPEED_KM_S
 
+    def bound(self):
+        """What every step needs, worked out once (:class:`models.waiting.BoundNoise`, cached)."""
+        from .waiting import bind
+
+        return bind(self)
+
     def to_dict(self) -> dict:
         """Plain-JSON form (inverse: :meth:`from_dict`)."""
         n = self.noise

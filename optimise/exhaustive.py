@@ -283,7 +283,8 @@ def exhaustive_front(
         "final": False,
         "count": bool(count_last),
     }
-    level = start_chains(profile, 1)
+    # the chains carry the waiting data of every round still to come
+    level = start_chains(profile, 1, rounds_ahead=depth_goal)
     back = []  # per depth: (parent, code) of each kept state
     # doing nothing is a recipe too: the raw pair itself (depth 0) beats every
     # recipe that yields less and ends below the raw fidelity

@@ -11,8 +11,9 @@ Exact shortcuts used here, each proved where it is defined:
   the step bit-identical inputs give identical children, so only one is evaluated.
 - *Re-twirl* (:func:`add_twirled`): a round with the re-twirl differs from the same
   round without it only by :func:`models.evaluate.twirl` applied to the output
-  pair, after the classical exchange; success probability, cost, memory, rounds,
-  time and waiting-time transform are those of the untwirled round (this is how
+  pair and to its time-weighted states (the twirl is linear), after the classical
+  exchange; success probability, cost, memory, rounds, time and the deficits of the
+  time-weighted states are those of the untwirled round (this is how
   :func:`models.chain.advance` computes it; ``tests/optimise/test_exhaustive.py``
   checks the two agree).
 - *Relabelled states* (:func:`state_keys` with a symmetry): see the proof there.
@@ -20,13 +21,14 @@ Exact shortcuts used here, each proved where it is defined:
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import replace
 
 import numpy as np
 
 from models.chain import (
-    CODE_DOUBLE,
+    CODE_N_INPUTS,
     CODE_ROTATIONS,
     CODE_SAME,
     LINEAR_ROUNDS,
@@ -42,7 +44,7 @@ from .pareto import pareto_mask, quantise
 
 KEY_SCALE = 1e12  # states are merged when every weight agrees to ~1e-12
 BATCH = 16384  # rows per advance call (measured fastest on this machine: 8192-65536 within 10%)
-FIELDS = ("bell", "raw_pairs", "memory", "rounds", "time_s", "laplace")
+FIELDS = ("bell", "raw_pairs", "memory", "rounds", "time_s", "weighted", "deficit")
 TWIRL_PARTNER = np.array([round_code(replace(r, twirl=True)) for r in LINEAR_ROUNDS])
 UNTWIRLED = np.array([round_code(replace(r, twirl=False)) for r in LINEAR_ROUNDS])
 
@@ -74,20 +76,38 @@ def symmetry_of(profile) -> str:
     return "xy"
 
 
-def state_keys(bell, laplace, symmetry: str = "none") -> np.ndarray:
-    """Integer keys, shape (N, 7): equal keys mean states to merge.
+# the relabellings of X, Y, Z each symmetry allows, as column orders of (I, X, Y, Z)
+RELABELLINGS = {
+    "none": [(0, 1, 2, 3)],
+    "xy": [(0, 1, 2, 3), (0, 2, 1, 3)],
+    "xyz": [(0,) + p for p in itertools.permutations((1, 2, 3))],
+}
 
-    A state is its Bell weights (N, 4) and the Laplace transform of its production
-    time (N, 3), which decides how much the pairs waiting for it decay. With a
-    symmetry (:func:`symmetry_of`) the weights it permutes are sorted first.
+
+def state_keys(bell, weighted, symmetry: str = "none") -> np.ndarray:
+    """Integer keys, shape (N, 4 K): equal keys mean states to merge.
+
+    A state is its Bell weights (N, 4) and its time-weighted states at the K
+    rates it carries (N, K, 4; entry 0 is the Bell weights again), which decide
+    how much the pairs waiting for it decay. With a symmetry (:func:`symmetry_of`)
+    the key is the smallest, in lexicographic order, over the relabellings it
+    allows, applied to the Bell weights and every time-weighted state alike.
     """
-    b = np.array(bell, dtype=float)
-    if symmetry == "xyz":
-        b[:, 1:] = np.sort(b[:, 1:], axis=1)
-    elif symmetry == "xy":
-        b[:, 1:3] = np.sort(b[:, 1:3], axis=1)
-    both = np.concatenate([b, np.asarray(laplace, dtype=float)], axis=1)
-    return np.round(both * KEY_SCALE).astype(np.int64)
+    b = np.asarray(bell, dtype=float)
+    w = np.asarray(weighted, dtype=float)
+    state = np.concatenate([b[:, None, :], w[:, 1:, :]], axis=1)
+    best = None
+    for columns in RELABELLINGS[symmetry]:
+        keys = np.round(state[:, :, columns] * KEY_SCALE).astype(np.int64).reshape(len(b), -1)
+        if best is None:
+            best = keys
+            continue
+        differ = keys != best
+        first = differ.argmax(axis=1)
+        rows = np.arange(len(b))
+        smaller = differ.any(axis=1) & (keys[rows, first] < best[rows, first])
+        best[smaller] = keys[smaller]
+    return best
 
 
 def _mix(x: np.ndarray) -> np.ndarray:
@@ -150,7 +170,7 @@ def valid_pairs(chains: ChainBatch, profile, base: np.ndarray, dedupe: bool):
     valid = kept_ok[:, rot[:, 0]]
     same = CODE_SAME[base]
     for j in (1, 2):
-        used = (j == 1) | CODE_DOUBLE[base]
+        used = CODE_N_INPUTS[base] > j
         from_state = kept_ok[:, rot[:, j]]
         from_raw = np.broadcast_to(raw_ok[rot[:, j]], from_state.shape)
         ok = np.where(same[None, :], from_state, from_raw)
@@ -181,7 +201,11 @@ def add_twirled(out: ChainBatch, codes, want_base, want_twirl, single_qubit):
     keep = np.flatnonzero(want_base)
     tw = np.flatnonzero(want_twirl)
     twirled = out.take(tw)
-    twirled = replace(twirled, bell=twirl(twirled.bell, single_qubit))
+    twirled = replace(
+        twirled,
+        bell=twirl(twirled.bell, single_qubit),
+        weighted=twirl(twirled.weighted, single_qubit),
+    )
     batch = concat([out.take(keep), twirled])
     return (
         batch,
@@ -314,7 +338,7 @@ def expand_chunk(arrays: dict, profile, codes, options: dict) -> dict:
     for lo in range(0, len(parent), BATCH):
         par = parent[lo : lo + BATCH]
         cod = code[lo : lo + BATCH]
-        out, success = advance(chains.take(par), cod, profile)
+        out, success = advance(chains, cod, profile, parent=par)
         pos = position[cod]
         batch, new_codes, rows = add_twirled(out, cod, want_base[pos], want_twirl[pos], p1)
         ok = success[rows] > 0
@@ -323,7 +347,7 @@ def expand_chunk(arrays: dict, profile, codes, options: dict) -> dict:
         if options["max_time"] is not None:
             ok &= batch.time_s <= options["max_time"]
         batch = batch.take(ok)
-        keys = state_keys(batch.bell, batch.laplace, options["symmetry"])
+        keys = state_keys(batch.bell, batch.weighted, options["symmetry"])
         if final and options.get("count", True):
             hashes.append(np.unique(key_hashes(keys)))
         piece = squeeze([(par[rows][ok], new_codes[ok], batch, keys)])
@@ -333,8 +357,10 @@ def expand_chunk(arrays: dict, profile, codes, options: dict) -> dict:
             pieces = squeeze(pieces)
             held = len(pieces[0][0])
     if not pieces:
-        empty = chains.take(np.zeros(0, dtype=np.intp))
-        pieces = [(np.zeros(0, np.intp), np.zeros(0, np.intp), empty, np.zeros((0, 7), np.int64))]
+        none = np.zeros(0, dtype=np.intp)
+        empty, _ = advance(chains.take(none), none, profile)  # no children, shaped as children
+        keys = state_keys(empty.bell, empty.weighted)
+        pieces = [(none, none, empty, keys)]
     ((parent_out, code_out, batch, keys),) = squeeze(pieces)
     if final:
         keep = merge_identical(keys, labels_of(batch, options["extra"]))

@@ -41,11 +41,11 @@ ASSUMPTIONS = (
     "on measured characterisation, not on this model alone."
 )
 WAITING_RULE = (
-    "the inputs of a step are made one after another and each waits in memory until the "
-    "last is made, and the kept pair waits the one-way classical delay during each "
-    "exchange; decay is averaged over the random waits, exactly for waits on raw pairs "
-    "and approximately (a step's success taken as independent of how long it took) for "
-    "waits on purified pairs."
+    "the inputs of a step are made one after another in the documented order and each "
+    "waits in memory until the last is made, the kept pair waits the one-way classical "
+    "delay during each exchange, and a failed step restarts from scratch; decay is "
+    "averaged exactly over the random waits, on raw and purified pairs alike, with "
+    "time-weighted states (a step's success depends on how long its inputs waited)."
 )
 ASSUMPTIONS = ASSUMPTIONS.format(waiting=WAITING_RULE)
 

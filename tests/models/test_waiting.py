@@ -20,10 +20,8 @@ import sys
 
 import numpy as np
 import pytest
-from numpy.testing import assert_allclose
 
 from models import NodeNoise, Profile, Recipe, evaluate, parse_recipe
-from models.evaluate import SUM_INDEX, memory_rates, raw_pair_figures, shared_wait_joint
 from models.noise import store
 from models.recipes import making_order
 from models.steps import DOUBLE_SELECTION, TWO_TO_ONE, run_step
@@ -152,27 +150,6 @@ def test_waits_on_composite_pairs_are_close():
     assert abs(model_t - sim_t) / sim_t < 0.03
     model_p, sim_p, _ = c["success"]
     assert np.all(np.abs(model_p - sim_p) / sim_p < 0.02)
-
-
-def test_shared_wait_joint_against_quadrature():
-    # two pairs waiting for exponential arrivals, the first for two of them and the
-    # second for the last one: Gauss-Laguerre quadrature over both waiting times
-    rate = PROFILE.pair_rate_hz
-    first, second = np.array([0.8, 0.1, 0.06, 0.04]), np.array([0.7, 0.1, 0.1, 0.1])
-    nodes, weights = np.polynomial.laguerre.laggauss(60)
-    expected = np.zeros((4, 4))
-    n = PROFILE.noise
-    for u, wu in zip(nodes, weights, strict=True):
-        for v, wv in zip(nodes, weights, strict=True):
-            t_mid, t_last = u / rate, v / rate
-            a = store(first, wait_s=t_mid + t_last, t1_s=n.t1_s, t2_s=n.t2_s)
-            b = store(second, wait_s=t_last, t1_s=n.t1_s, t2_s=n.t2_s)
-            expected += wu * wv * np.outer(a, b)
-    _, laplace = raw_pair_figures(PROFILE)
-    assert_allclose(shared_wait_joint(first, second, laplace, laplace), expected, atol=1e-12)
-    # and the rates it needs are the sums of two decay rates
-    rates = memory_rates(PROFILE.noise)
-    assert_allclose(rates[SUM_INDEX[1, 3]], rates[1] + rates[3])
 
 
 def report():  # pragma: no cover - a script, not a test

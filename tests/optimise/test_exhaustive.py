@@ -181,15 +181,15 @@ def test_front_equals_brute_force_for_every_round_at_depth_two(name):
 @pytest.mark.parametrize("name", ["noisy-rotations", "memory"])
 def test_distinct_states_counted_as_brute_force_finds_them(name):
     # without the relabelling merge, the states of depth d are the distinct keys of
-    # all sequences of length d (keys: weights and waiting-time transform to 1e-12)
+    # all sequences of length d (keys: weights and time-weighted states to 1e-12)
     profile = PROFILES[name]
     front = exhaustive_front(profile, max_depth=2, codes=SMALL, symmetry=False)
     counts = []
     for d in (1, 2):
-        chains = start_chains(profile, len(SMALL) ** d)
+        chains = start_chains(profile, len(SMALL) ** d, rounds_ahead=2)
         for seq in zip(*itertools.product(SMALL, repeat=d), strict=True):
             chains, _ = advance(chains, np.array(seq), profile)
-        counts.append(len(np.unique(state_keys(chains.bell, chains.laplace), axis=0)))
+        counts.append(len(np.unique(state_keys(chains.bell, chains.weighted), axis=0)))
     assert front.states_per_depth == tuple(counts)
 
 
@@ -226,7 +226,7 @@ def test_retwirl_shortcut_agrees_with_advance():
     # the twirled variant of a round is models.evaluate.twirl of its untwirled output
     profile = PROFILES["memory-noisy-rotations"]
     rng = np.random.default_rng(3)
-    chains = start_chains(profile, 300)
+    chains = start_chains(profile, 300, rounds_ahead=3)
     for _ in range(2):
         chains, _ = advance(chains, rng.integers(0, N_CODES, 300), profile)
     codes = np.unique(UNTWIRLED[rng.integers(0, N_CODES, 300)])[:200]
@@ -236,7 +236,7 @@ def test_retwirl_shortcut_agrees_with_advance():
     want = np.ones(len(codes), dtype=bool)
     batch, new_codes, _ = add_twirled(untwirled, codes, ~want, want, profile.noise.single_qubit)
     np.testing.assert_array_equal(new_codes, TWIRL_PARTNER[codes])
-    for field in ("bell", "raw_pairs", "memory", "rounds", "time_s", "laplace"):
+    for field in ("bell", "raw_pairs", "memory", "rounds", "time_s", "weighted", "deficit"):
         np.testing.assert_allclose(
             getattr(batch, field), getattr(twirled, field), rtol=1e-13, atol=1e-15
         )
