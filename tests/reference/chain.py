@@ -11,9 +11,11 @@ with depolarising noise (a twirl costs the noise of one rotation: stillroom's
 stated choice). After each wait the state is reduced to its Bell diagonal: the
 Bell-diagonal model assumes that twirl (the conventions' pair-level projection).
 
-Random waits are out of reach: the chain is valid when the only waits are the
-deterministic exchanges, that is with an instant link (no pair rate) or with
-perfect memories, and it refuses other profiles.
+Random waits are out of reach, so the chain is valid only where no stored pair
+waits a random time: with perfect memories (waits do nothing), or with an
+instant link (no pair rate) in recipes whose every round pumps raw pairs (a made
+pair takes a random number of attempts, each with an exchange, so a pair that
+waits for one waits a random time). It refuses other cases.
 """
 
 from __future__ import annotations
@@ -64,7 +66,8 @@ def reference_chain(recipe, profile) -> tuple[np.ndarray, np.ndarray]:
     ----------
     recipe : models.Recipe or str
     profile : models.Profile
-        With ``pair_rate_hz = inf`` or perfect memories (``t1_s = t2_s = inf``).
+        With perfect memories (``t1_s = t2_s = inf``), or ``pair_rate_hz = inf`` and
+        a recipe whose rounds all pump raw pairs.
 
     Returns
     -------
@@ -75,13 +78,15 @@ def reference_chain(recipe, profile) -> tuple[np.ndarray, np.ndarray]:
         Bell weights (I, X, Y, Z) of the output.
     """
     noise = profile.noise
-    perfect_memory = math.isinf(noise.t1_s) and math.isinf(noise.t2_s)
-    if not (perfect_memory or math.isinf(profile.pair_rate_hz)):
-        raise ValueError(
-            "the reference chain has no random waits: use an instant link or perfect memories"
-        )
     if isinstance(recipe, str):
         recipe = models.parse_recipe(recipe)
+    perfect_memory = math.isinf(noise.t1_s) and math.isinf(noise.t2_s)
+    pumping = all(r.sacrificed == "raw" for r in recipe.rounds)
+    if not (perfect_memory or (math.isinf(profile.pair_rate_hz) and pumping)):
+        raise ValueError(
+            "the reference chain has no random waits: use perfect memories, or an instant "
+            "link and a recipe whose every round pumps raw pairs"
+        )
     raw = np.array(profile.raw)
     probabilities: list[float] = []
 
