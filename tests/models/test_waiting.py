@@ -32,6 +32,7 @@ import math
 import sys
 from dataclasses import dataclass
 from functools import lru_cache
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -42,6 +43,12 @@ from models.kinds import STEP_KINDS
 from models.noise import store
 from models.recipes import making_order
 from models.steps import run_step
+
+try:
+    from tests.reference.waiting_rule import waiting_rule
+except ModuleNotFoundError:  # plain `pytest` puts only this folder on sys.path
+    sys.path.append(str(Path(__file__).resolve().parents[2]))  # the repository root
+    from tests.reference.waiting_rule import waiting_rule
 
 # A raw pair every 1 ms on average, T1 = 30 ms, T2 = 20 ms: a pair made by one
 # DEJMPS round takes about 3 ms, by two rounds about 11 ms, so the waits for made
@@ -55,9 +62,9 @@ PROFILE = Profile(
 )
 SAMPLES = 400000
 # Fixed seed. About 35 figures are compared, so at three standard errors a few
-# seeds in ten would flag one figure of an exact model by chance: at this seed an
-# evaluation of the conventions' exact rule (time-weighted states, written out
-# separately from the model) lies within 2.3 standard errors of every figure.
+# seeds in ten would flag one figure of an exact model by chance: at this seed the
+# conventions' exact rule, written out separately from the model
+# (tests/reference/waiting_rule.py), lies within 2.3 standard errors of every figure.
 SEED = 2
 # |model - simulation| / standard error allowed (three standard errors)
 Z_LIMIT = 3.0
@@ -182,21 +189,31 @@ def simulated(text: str) -> Simulation:
     return simulate(text, PROFILE, SAMPLES, SEED)
 
 
-def compare(text: str) -> list:
+def rule_figures(text: str) -> list:
+    """The written-out exact rule's fidelity, mean time and main-chain success probabilities."""
+    rule = waiting_rule(text, PROFILE)
+    return [rule["bell"][0], rule["time_s"], *rule["success"]]
+
+
+def compare(text: str, expected=None) -> list:
     """Rows (figure, model, simulation, standard error, z) for one recipe.
 
     Figures: the output fidelity, the mean time per output and the success
-    probability of each round of the main chain.
+    probability of each round of the main chain; ``expected`` replaces the
+    model's figures (same order).
     """
     sim = simulated(text)
-    model = evaluate(text, PROFILE, canonicalise=False)
-    rows = [
-        ("fidelity", model.fidelity, *mean_and_error(sim.bell[:, 0])),
-        ("time_s", model.time_per_output_s, *mean_and_error(sim.time_s)),
-    ]
-    for d, (figures, sampled) in enumerate(zip(model.trace, sim.attempts, strict=True)):
-        rows.append((f"P{d + 1}", figures.success_probability, *mean_and_error(sampled)))
-    return [(name, m, s, se, (m - s) / se) for name, m, s, se in rows]
+    if expected is None:
+        model = evaluate(text, PROFILE, canonicalise=False)
+        expected = [model.fidelity, model.time_per_output_s]
+        expected += [figures.success_probability for figures in model.trace]
+    sampled = [sim.bell[:, 0], sim.time_s, *sim.attempts]
+    names = ["fidelity", "time_s"] + [f"P{d + 1}" for d in range(len(sim.attempts))]
+    rows = []
+    for name, m, x in zip(names, expected, sampled, strict=True):
+        mean, se = mean_and_error(x)
+        rows.append((name, float(m), mean, se, (m - mean) / se))
+    return rows
 
 
 def _assert_agree(rows):
@@ -228,6 +245,23 @@ def test_the_simulation_would_notice_a_model_without_memory_decay():
     )
     f, f_se = mean_and_error(sim.bell[:, 0])
     assert abs(evaluate("sY^3", perfect).fidelity - f) > 20 * f_se
+
+
+@pytest.mark.parametrize("text", RAW_WAITS + MADE_WAITS)
+def test_the_written_out_rule_agrees_with_the_simulation(text):
+    # checks the simulation and tests/reference/waiting_rule.py against each other
+    _assert_agree(compare(text, rule_figures(text)))
+
+
+@pytest.mark.parametrize("text", RAW_WAITS + MADE_WAITS)
+def test_model_agrees_with_the_written_out_rule(text):
+    # source: the conventions' exact rule (tests/reference/waiting_rule.py), itself
+    # checked against the simulation above
+    model = evaluate(text, PROFILE, canonicalise=False)
+    rule = waiting_rule(text, PROFILE)
+    assert_allclose(model.bell, rule["bell"], atol=1e-10)
+    assert_allclose([f.success_probability for f in model.trace], rule["success"], atol=1e-10)
+    assert_allclose(model.time_per_output_s, rule["time_s"], rtol=1e-10)
 
 
 def test_double_selection_on_raw_pairs_against_quadrature():
@@ -271,16 +305,16 @@ def test_double_selection_on_raw_pairs_against_quadrature():
 
 
 def report(texts=RAW_WAITS + MADE_WAITS) -> None:  # pragma: no cover - a script, not a test
-    head = ("recipe", "figure", "model", "simulation", "std err", "z")
-    print(f"{head[0]:18s} {head[1]:8s} {head[2]:>12s} {head[3]:>12s} {head[4]:>10s} {head[5]:>7s}")
+    """Print model, written-out rule, simulation, standard error and the model's z-score."""
+    head = ("recipe", "figure", "model", "rule", "simulation", "std err", "z")
+    columns = "".join(f"{h:>12s}" for h in head[2:6])
+    print(f"{head[0]:18s} {head[1]:8s}{columns}{head[6]:>8s}")
     for text in texts:
-        for name, m, s, se, z in compare(text):
+        for (name, m, s, se, z), r in zip(compare(text), rule_figures(text), strict=True):
             scale = 1e3 if name == "time_s" else 1.0
             label = "time_ms" if name == "time_s" else name
-            print(
-                f"{text:18s} {label:8s} {m * scale:12.6f} {s * scale:12.6f} "
-                f"{se * scale:10.6f} {z:+7.1f}"
-            )
+            values = "".join(f"{v * scale:12.6f}" for v in (m, r, s, se))
+            print(f"{text:18s} {label:8s}{values}{z:+8.1f}")
 
 
 if __name__ == "__main__":  # pragma: no cover
