@@ -2,15 +2,13 @@
 
 The reference (tests/reference/density_matrix.py) simulates each step on the
 full 4- or 6-qubit density matrix with explicit unitaries, Kraus operators and
-projectors (qutip). Here its steps are chained by hand: the kept pair's state
-is passed on, copies for symmetric rounds are copies of it, memory acts through
-the reference's Kraus operators for the classical delay, and the re-twirl is
-built from the three cyclic bilateral Cliffords, each applied as a gate with
-depolarising noise (the model's choice: a twirl costs the noise of one
-rotation). After each wait the state is reduced to its Bell diagonal: the
-Bell-diagonal model assumes that twirl (the conventions' pair-level projection).
-With an instant link the only waits are the deterministic exchanges, so the
-model should agree to rounding.
+projectors (qutip); tests/reference/chain.py chains its steps by hand: the kept
+pair's state is passed on, copies for symmetric rounds are copies of it, memory
+acts through the reference's Kraus operators for the classical delay, and the
+re-twirl is built from the three cyclic bilateral Cliffords, each applied as a
+gate with depolarising noise (the model's choice: a twirl costs the noise of one
+rotation). With an instant link the only waits are the deterministic exchanges,
+so the model should agree to rounding.
 """
 
 from __future__ import annotations
@@ -23,72 +21,16 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-import models
 from models import NodeNoise, Profile, evaluate, parse_recipe
 from models.evaluate import twirl
 
 try:
-    from tests.reference import density_matrix as ref
+    from tests.reference.chain import reference_chain, reference_twirl
 except ModuleNotFoundError:  # plain `pytest` puts only this folder on sys.path
     sys.path.append(str(Path(__file__).resolve().parents[2]))  # the repository root
-    from tests.reference import density_matrix as ref
+    from tests.reference.chain import reference_chain, reference_twirl
 
 TOL = 1e-10
-CYCLIC = ("Z", "y", "x")  # identity and the two 3-cycles of X, Y, Z
-
-
-def _perm(r: int):
-    return None if r == 0 else tuple(int(k) for k in models.PERMUTATIONS[r])
-
-
-def reference_twirl(bell, single_qubit: float) -> np.ndarray:
-    """Average over the three cyclic bilateral Cliffords, each applied as a noisy gate.
-
-    The model's twirl is one random Clifford applied as a gate, so every draw,
-    the identity included, carries the single-qubit noise of one rotation.
-    """
-    rho = ref.pair_state(np.asarray(bell, dtype=float))
-    total = 0
-    for name in CYCLIC:
-        r = models.ROTATION_NAMES.index(name)
-        out = rho
-        if r != 0:
-            u = ref.rotation_unitary(_perm(r))
-            out = ref.apply_unitary(out, u, 0)
-            out = ref.apply_unitary(out, u.conj(), 1)
-        out = ref.depolarize(out, [0], single_qubit)
-        out = ref.depolarize(out, [1], single_qubit)
-        total = total + out / 3.0
-    weights, _ = ref.bell_diagonal(total)
-    return weights
-
-
-def reference_chain(text: str, profile: Profile):
-    """Success probability of each round and the final Bell weights, from the reference."""
-    noise = profile.noise
-    raw = np.array(profile.raw)
-    current = raw
-    probabilities = []
-    for r in parse_recipe(text).rounds:
-        sacrificed = raw if r.sacrificed == "raw" else current
-        rotations = tuple(_perm(k) for k in r.rotations)
-        params = dict(
-            rotations=rotations,
-            two_qubit=noise.two_qubit,
-            single_qubit=noise.single_qubit,
-            measurement=noise.measurement,
-        )
-        if r.selection == "single":
-            result = ref.two_to_one(current, sacrificed, **params)
-        else:
-            result = ref.double_selection(current, sacrificed, sacrificed, **params)
-        probabilities.append(result.success)
-        current, _, _ = ref.store(
-            result.rho, wait_s=profile.classical_delay_s, t1_s=noise.t1_s, t2_s=noise.t2_s
-        )
-        if r.twirl:
-            current = reference_twirl(current, noise.single_qubit)
-    return np.array(probabilities), current
 
 
 @pytest.mark.parametrize(
