@@ -143,3 +143,31 @@ def summary(checked) -> list[str]:
             f"output off-diagonal norm {u.coherence:.1e}"
         )
     return lines
+
+
+def verified_table(rows):
+    """The verified column of ``stillroom table --verify``, one row per front recipe."""
+    from rich.table import Table
+
+    table = Table(
+        title="Verified: model F against full density-matrix re-simulation",
+        title_justify="left",
+        header_style="bold",
+        box=None,
+        pad_edge=False,
+    )
+    table.add_column("#", justify="right")
+    table.add_column("recipe")
+    for name in ("model F", "re-simulated F", "±", "difference", "how"):
+        table.add_column(name, justify="right")
+    for i, row in enumerate(rows, 1):
+        table.add_row(
+            str(i),
+            row["recipe"],
+            f"{row['model']:.6f}",
+            f"{row['simulated']:.6f}",
+            f"{row['standard_error']:.1e}" if row["standard_error"] else "",
+            f"{row['difference']:+.1e}",
+            row["method"],
+        )
+    return table
