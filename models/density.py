@@ -82,7 +82,8 @@ def pair_density(bell) -> np.ndarray:
 
     Examples
     --------
-    >>> bool(np.allclose(bell_weights(pair_density([0.7, 0.1, 0.15, 0.05])), [0.7, 0.1, 0.15, 0.05]))
+    >>> weights = [0.7, 0.1, 0.15, 0.05]
+    >>> bool(np.allclose(bell_weights(pair_density(weights)), weights))
     True
     """
     w = np.asarray(bell, dtype=float)
@@ -158,17 +159,6 @@ def conjugate(rho, op, qubits) -> np.ndarray:
 def apply_kraus(rho, kraus, qubits) -> np.ndarray:
     """``sum_j K_j rho K_j^dagger`` with fixed Kraus operators (each 2**k x 2**k) on ``qubits``."""
     return sum(conjugate(rho, k, qubits) for k in kraus)
-
-
-def depolarizing_kraus(survival: float) -> np.ndarray:
-    """Kraus operators of ``p rho + (1 - p) 1/2 Tr(rho)`` on one qubit, shape (4, 2, 2).
-
-    ``sqrt(p + (1 - p)/4) 1`` and ``sqrt((1 - p)/4) sigma_k`` for k = x, y, z:
-    averaging over the four Paulis replaces a qubit by the maximally mixed state
-    (common practice, no source).
-    """
-    weights = np.array([survival + (1.0 - survival) / 4] + [(1.0 - survival) / 4] * 3)
-    return np.sqrt(weights)[:, None, None] * PAULIS
 
 
 def depolarize(rho, qubits, survival: float) -> np.ndarray:
@@ -309,7 +299,10 @@ def step_effects(circuit, rotations, *, two_qubit, single_qubit, measurement) ->
     # the adjoint of each map, last map first; Paulis and the CNOT are Hermitian,
     # so the depolarising and flip maps are their own adjoints
     for pair in range(1, n):
-        flips = [np.sqrt(measurement) * PAULIS[0], np.sqrt(1.0 - measurement) * _FLIP[by_pair[pair]]]
+        flips = [
+            np.sqrt(measurement) * PAULIS[0],
+            np.sqrt(1.0 - measurement) * _FLIP[by_pair[pair]],
+        ]
         for qubit in (2 * pair, 2 * pair + 1):
             g = apply_kraus(g, flips, [qubit])
     for control, target in reversed(circuit.cnots):

@@ -51,9 +51,7 @@ def _random_recipe(rng, depth: int, allow_source: bool = True) -> Recipe:
     for _ in range(depth):
         # few double-selection rotation triples: each costs a circuit compilation
         double = rng.random() < 0.2
-        rotations = (
-            tuple(rng.choice([0, 2, 4], 3)) if double else tuple(int(r) for r in rng.integers(0, 6, 2))
-        )
+        rotations = rng.choice([0, 2, 4], 3) if double else rng.integers(0, 6, 2)
         sacrificed = rng.choice(["raw", "same", "sub"] if allow_source else ["raw", "same"])
         source = None
         if sacrificed == "sub":
@@ -217,3 +215,30 @@ def test_cli_bad_recipe_exits_2(capsys):
     assert main(["verify", "sY.q"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("stillroom: cannot read recipe 'sY.q'") and "^" in err
+
+
+def test_table_verify_adds_a_verified_column(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(["search", "--depth", "1", "--trials", "4", "--no-progress", "--json"]) == 0
+    run_dir = json.loads(capsys.readouterr().out)["run_dir"]
+    assert main(["table", run_dir, "--no-plots", "--verify", "200", "--json"]) == 0
+    document = json.loads(capsys.readouterr().out)
+    validate(document, "recipes")
+    verified = document["verified"]
+    assert [v["recipe"] for v in verified] == [e["recipe"] for e in document["front"]]
+    for v in verified:
+        assert v["model"] == pytest.approx(
+            next(e["fidelity"] for e in document["front"] if e["recipe"] == v["recipe"])
+        )
+        # the demo's waits are random: sampled, within a few standard errors
+        assert abs(v["difference"]) <= 4.5 * v["standard_error"] + 1e-12, v
+    assert main(["table", run_dir, "--no-plots", "--verify", "50"]) == 0
+    out = capsys.readouterr().out
+    assert "Verified: model F against full density-matrix re-simulation" in out
+
+
+def test_verify_help_has_examples(capsys):
+    assert main(["verify", "--help"]) == 0
+    out = capsys.readouterr().out
+    assert "stillroom verify" in out.split("examples:")[1]
+    assert "--samples" in out and "--seed" in out and "--json" in out
