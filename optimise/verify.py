@@ -129,14 +129,11 @@ class Verification:
                     ("success_probabilities", i),
                 )
             )
-        figures.append(
-            ("raw pairs / output", m.raw_pairs_per_output, t.raw_pairs_per_output,
-             t.raw_pairs_se, "raw_pairs_per_output")
-        )
-        figures.append(
-            ("time / output (s)", m.time_per_output_s, t.time_per_output_s, t.time_se,
-             "time_per_output_s")
-        )
+        for name, key, se in (
+            ("raw pairs / output", "raw_pairs_per_output", t.raw_pairs_se),
+            ("time / output (s)", "time_per_output_s", t.time_se),
+        ):
+            figures.append((name, getattr(m, key), getattr(t, key), se, key))
         rows = []
         for name, model, simulated, se, key in figures:
             row = {
@@ -331,8 +328,10 @@ class _Simulator:
             p = float(p[0])
             self.success[(path, depth)] = [np.array([p])]
             out = self.finish(r, kept)
-            made = (out, cost / p if p > 0 else math.inf,
-                    (time_s + self.delay) / p if p > 0 else math.inf)
+            if p > 0:
+                made = (out, cost / p, (time_s + self.delay) / p)
+            else:
+                made = (out, math.inf, math.inf)
         memo[(path, depth)] = made
         return made
 
