@@ -31,6 +31,15 @@ def add_parser(sub, parents) -> None:
     common.add_runs_dir(p, "where to look for a run given by name (default: %(default)s)")
     p.add_argument("--format", choices=tuple(TABLE_FORMATS), help="print this table on stdout")
     p.add_argument("--no-plots", action="store_true", help="skip front.png and front.svg")
+    p.add_argument(
+        "--verify",
+        nargs="?",
+        const=500,
+        type=common.whole_number_at_least(2),
+        metavar="N",
+        help="add a verified column: each front recipe re-simulated with full density "
+        "matrices (N outputs sampled where waits are random; default 500)",
+    )
     p.set_defaults(handler=run)
 
 
@@ -49,8 +58,12 @@ def run(args) -> int:
     found = find_run(args.run, args.runs_dir)
     written = write_reports(found.folder, plots=not args.no_plots)
     front = found.read_front()
+    verified = _verified(front, args.verify) if args.verify else None
     if args.json:
-        common.print_json(recipes_document(front))
+        document = recipes_document(front)
+        if verified is not None:
+            document["verified"] = verified
+        common.print_json(document)
         return 0
     if args.format:
         sys.stdout.write(found.read_text(TABLE_FORMATS[args.format]))
@@ -60,6 +73,19 @@ def run(args) -> int:
     out.print(f"run {found.folder}: {front.n_trials} trials, front {state}")
     title = f"Pareto front ({len(front.results)} recipes)"
     common.print_front(out, front.results, front.baselines, title)
+    if verified is not None:
+        from .verify import verified_table
+
+        out.print()
+        out.print(verified_table(verified))
     common.print_written(out, written, found.folder, plots_wanted=not args.no_plots)
     common.print_assumptions(out)
     return 0
+
+
+def _verified(front, samples: int) -> list[dict]:
+    from models.profile import Profile
+
+    from ..verify import verified_rows
+
+    return verified_rows(front.results, Profile.from_dict(front.profile), samples=samples)
