@@ -190,7 +190,7 @@ def _cycle():
         yield from BASELINE_STYLES
 
 
-def write_front_plots(front, stem) -> list[Path]:
+def write_front_plots(front, stem, *, targets=()) -> list[Path]:
     """Write ``<stem>.png`` and ``<stem>.svg`` (a run's ``front``); returns their paths."""
     plt = _pyplot()
     fig = front_figure(front)
