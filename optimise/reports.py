@@ -371,7 +371,7 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
     targets : sequence of float
         Target fidelities, one row each (the run's own ``--target`` is added).
     """
-    from .rows import DEFAULT_TOP, why_canonical
+    from .rows import DEFAULT_TOP, canonical_notes
 
     top = DEFAULT_TOP if top is None else top
     rows, baselines, target_table = report_rows(front, top, targets)
@@ -400,11 +400,10 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
             cells[0] = _md_recipe(Row(row.result, (), "", row.written))
             label = row.label + (f" (also: {', '.join(row.also)})" if row.also else "")
             lines.append("| " + " | ".join([label] + cells) + " |")
-        reasons = dict.fromkeys(
-            f"`{r.written}` reads `{r.result.notation}`: {why_canonical(r.written, r.result.notation)}."
-            for r in baselines
-            if r.written
-        )
+        reasons = [
+            f"`{built}` reads `{canonical}`: {why}."
+            for built, canonical, why in canonical_notes(baselines, front.baselines)
+        ]
         if reasons:
             lines += ["", "Baselines are shown in canonical form. " + " ".join(reasons)]
     if target_table:
@@ -514,7 +513,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
     the profile and says what each symbol means; the notes under the table
     carry the provenance and :data:`ASSUMPTIONS`. Needs ``\\usepackage{booktabs}``.
     """
-    from .rows import DEFAULT_TOP, why_canonical
+    from .rows import DEFAULT_TOP, canonical_notes
 
     top = DEFAULT_TOP if top is None else top
     rows, baselines, target_table = report_rows(front, top, targets)
@@ -575,12 +574,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
         for b in baselines:
             recipe = tex_recipe(b.result.notation)
             if b.written:
-                recipe += mark(
-                    r"built as \texttt{"
-                    + latex_escape(b.written)
-                    + "}: "
-                    + latex_escape(why_canonical(b.written, b.result.notation))
-                )
+                recipe += mark(r"built as \texttt{" + latex_escape(b.written) + "}")
             first = latex_escape(_short_label(b.label))
             if b.also:
                 first += mark("also " + latex_escape("; ".join(b.also)))
@@ -622,6 +616,17 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
     ]
     for k, note in enumerate(notes):
         lines.append(r"  \textsuperscript{" + chr(ord("a") + k) + "}" + note + r".\\")
+    reasons = canonical_notes(baselines, front.baselines)
+    if reasons:
+        lines.append(
+            "  Baselines are shown in canonical form. "
+            + " ".join(
+                r"\texttt{" + latex_escape(built) + r"} reads \texttt{" + latex_escape(canonical)
+                + "}: " + latex_escape(why) + "."
+                for built, canonical, why in reasons
+            )
+            + r"\\"
+        )
     lines += [
         "  " + latex_escape(" ".join(provenance(front))) + " " + latex_escape(ASSUMPTIONS),
         r"  \end{minipage}",

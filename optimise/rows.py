@@ -192,7 +192,15 @@ def baseline_rows(baselines, *, every: bool = False) -> list[Row]:
         built = built_recipe(b.name, b.depth)
         written = built if built and built != b.result.notation else None
         rows.append(Row(b.result, (), baseline_label(b.name, b.depth), written))
-    grouped = group_identical(rows, key_text=lambda row: row.label)
+    grouped = group_identical(
+        rows,
+        key_text=lambda row: row.label + (f" (built as {row.written})" if row.written else ""),
+    )
+    # the representative's own text is its label; its spelling stays in ``written``
+    grouped = [
+        Row(g.result, tuple(a for a in g.also if not a.startswith(g.label)), g.label, g.written)
+        for g in grouped
+    ]
     if every:
         return grouped
 
@@ -264,3 +272,19 @@ def _cheapest(find, results, target, limits):
     except ValueError:  # no recipe respects the limits
         return None
     return answer.recipe
+
+
+def canonical_notes(rows: list[Row], baselines) -> list[tuple[str, str, str]]:
+    """``(built, canonical, why)`` for each shown baseline whose recipe reads otherwise than built.
+
+    ``rows`` are the baseline rows a table shows (merged rows included through
+    their ``also``); each distinct spelling is explained once.
+    """
+    shown = " | ".join(row.label + " " + " ".join(row.also) for row in rows)
+    notes = {}
+    for b in baselines:
+        label = baseline_label(b.name, b.depth)
+        built = built_recipe(b.name, b.depth)
+        if label in shown and built and built != b.result.notation:
+            notes.setdefault(built, (built, b.result.notation, why_canonical(built, b.result.notation)))
+    return list(notes.values())
