@@ -392,9 +392,7 @@ def front_figure(front, *, targets=()):
 
         attribute = OBJECTIVES[objective].attribute
         values = [float(getattr(r, attribute)) for _, members in drawn for r in members[:1]]
-        panel.scatter(
-            [p[0] for p, _ in drawn], values, s=12, color=FRONT, gid=f"panel:{objective}"
-        )
+        panel.scatter([p[0] for p, _ in drawn], values, s=12, color=FRONT, gid=f"panel:{objective}")
         panel.set_ylabel(f"{title}\n({unit})", color=INK, fontsize=7)
     axes[-1].set_xlabel(COST_LABEL + " (log)", color=INK, fontsize=8)
     for panel in axes[1:]:
@@ -482,13 +480,30 @@ def sweep_figure(sweep: dict):
         return max(1.0 - f, 1e-12)
 
     best = [infidelity(p["best"]["fidelity"]) for p in points]
-    top.plot(xs, best, color=FRONT, marker="o", markersize=3.5, linewidth=1.3,
-             label="highest fidelity reachable", gid="sweep:best")
+    top.plot(
+        xs,
+        best,
+        color=FRONT,
+        marker="o",
+        markersize=3.5,
+        linewidth=1.3,
+        label="highest fidelity reachable",
+        gid="sweep:best",
+    )
     rawline = [infidelity(p["raw_fidelity"]) for p in points]
-    top.plot(xs, rawline, color=RAW, linestyle=(0, (1, 2)), linewidth=0.9, label="raw pair",
-             gid="sweep:raw")
+    top.plot(
+        xs,
+        rawline,
+        color=RAW,
+        linestyle=(0, (1, 2)),
+        linewidth=0.9,
+        label="raw pair",
+        gid="sweep:raw",
+    )
     top_values += best + rawline
-    names = list(dict.fromkeys(b["baseline"] for p in points for b in p.get("baselines", {}).get("best", [])))
+    names = list(
+        dict.fromkeys(b["baseline"] for p in points for b in p.get("baselines", {}).get("best", []))
+    )
     for name in names:
         colour, marker = baseline_style(name)
         ys = []
@@ -496,15 +511,32 @@ def sweep_figure(sweep: dict):
             entry = next(b for b in p["baselines"]["best"] if b["baseline"] == name)
             ys.append(infidelity(entry["fidelity"]))
         top_values += ys
-        top.plot(xs, ys, color=colour, marker=marker, markersize=3, markerfacecolor="white",
-                 linewidth=0.8, linestyle=(0, (2, 2)),
-                 label=f"{baseline_title(name)}, best depth", gid=f"sweep:baseline:{name}")
+        top.plot(
+            xs,
+            ys,
+            color=colour,
+            marker=marker,
+            markersize=3,
+            markerfacecolor="white",
+            linewidth=0.8,
+            linestyle=(0, (2, 2)),
+            label=f"{baseline_title(name)}, best depth",
+            gid=f"sweep:baseline:{name}",
+        )
     for k, recipe in enumerate(sweep.get("recipes", [])):
         ys = [infidelity(p["recipes"][k]["fidelity"]) for p in points]
         top_values += ys
         colour, marker = FOLLOWED_STYLES[k % len(FOLLOWED_STYLES)]
-        top.plot(xs, ys, color=colour, marker=marker, markersize=3, linewidth=1.0,
-                 label=f"{recipe['label']} (followed)", gid=f"sweep:recipe:{k}")
+        top.plot(
+            xs,
+            ys,
+            color=colour,
+            marker=marker,
+            markersize=3,
+            linewidth=1.0,
+            label=f"{recipe['label']} (followed)",
+            gid=f"sweep:recipe:{k}",
+        )
     top.set_yscale("log")
     yt = _log_ticks(top.yaxis, top_values, floor=1e-9)
     top.set_ylim(min(yt), max(yt))
@@ -520,18 +552,41 @@ def sweep_figure(sweep: dict):
             theirs = p.get("baselines", {}).get("targets", [None] * (k + 1))[k]
             bys.append(theirs["raw_pairs_per_output"] if theirs else math.nan)
         reached += [y for y in ys + bys if y == y and y is not None]
-        bottom.plot(xs, ys, color=colour, marker=marker, markersize=3.5, linewidth=1.2,
-                    label=f"below: cheapest recipe, F >= {target:g}", gid=f"sweep:target:{target:g}")
-        bottom.plot(xs, bys, color=colour, marker=marker, markersize=3, markerfacecolor="white",
-                    linewidth=0.8, linestyle=(0, (2, 2)),
-                    label=f"below: cheapest baseline, F >= {target:g}",
-                    gid=f"sweep:baseline-target:{target:g}")
-    for k, recipe in enumerate(sweep.get("recipes", [])):
+        bottom.plot(
+            xs,
+            ys,
+            color=colour,
+            marker=marker,
+            markersize=3.5,
+            linewidth=1.2,
+            label=f"below: cheapest recipe, F >= {target:g}",
+            gid=f"sweep:target:{target:g}",
+        )
+        bottom.plot(
+            xs,
+            bys,
+            color=colour,
+            marker=marker,
+            markersize=3,
+            markerfacecolor="white",
+            linewidth=0.8,
+            linestyle=(0, (2, 2)),
+            label=f"below: cheapest baseline, F >= {target:g}",
+            gid=f"sweep:baseline-target:{target:g}",
+        )
+    for k in range(len(sweep.get("recipes", []))):
         ys = [p["recipes"][k]["raw_pairs_per_output"] or math.nan for p in points]
         reached += [y for y in ys if y == y]
         colour, marker = FOLLOWED_STYLES[k % len(FOLLOWED_STYLES)]
-        bottom.plot(xs, ys, color=colour, marker=marker, markersize=3, linewidth=1.0,
-                    gid=f"sweep:recipe-cost:{k}")
+        bottom.plot(
+            xs,
+            ys,
+            color=colour,
+            marker=marker,
+            markersize=3,
+            linewidth=1.0,
+            gid=f"sweep:recipe-cost:{k}",
+        )
     bottom.set_yscale("log")
     if reached:
         bt = _log_ticks(bottom.yaxis, reached)

@@ -15,7 +15,6 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, ProgressColumn, TextColumn
 from rich.text import Text
 
-
 WIDTH = 80
 BAR_WIDTH = 12
 

@@ -98,7 +98,9 @@ def _plane(results) -> list[tuple[float, float]]:
     for r in results:
         cost = r.raw_pairs_per_output
         infidelity = max(1.0 - r.fidelity, 1e-16)
-        points.append((math.log10(cost) if math.isfinite(cost) else math.inf, math.log10(infidelity)))
+        points.append(
+            (math.log10(cost) if math.isfinite(cost) else math.inf, math.log10(infidelity))
+        )
     return points
 
 
@@ -242,7 +244,7 @@ class TargetRow:
 
 
 def target_rows(front, targets) -> list[TargetRow]:
-    """For each target fidelity, the cheapest recipe and baseline reaching it (within the limits)."""
+    """For each target fidelity, the cheapest recipe and baseline reaching it, within the limits."""
     from .limits import as_limits
     from .targets import cheapest_reaching
 
@@ -286,5 +288,7 @@ def canonical_notes(rows: list[Row], baselines) -> list[tuple[str, str, str]]:
         label = baseline_label(b.name, b.depth)
         built = built_recipe(b.name, b.depth)
         if label in shown and built and built != b.result.notation:
-            notes.setdefault(built, (built, b.result.notation, why_canonical(built, b.result.notation)))
+            notes.setdefault(
+                built, (built, b.result.notation, why_canonical(built, b.result.notation))
+            )
     return list(notes.values())

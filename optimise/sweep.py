@@ -19,8 +19,8 @@ from pathlib import Path
 
 from .errors import InputError, user_input
 from .files import write_atomic, write_json_atomic
-from .profiles import PARAMETERS, with_parameter
 from .labels import baseline_label, fmt_fidelity, fmt_number
+from .profiles import PARAMETERS, with_parameter
 from .reports import ASSUMPTIONS, _now, _version, profile_sentence
 
 CSV_COLUMNS = (
@@ -113,7 +113,6 @@ def run_sweep(
         Prints one line per value when given.
     """
     from models import hashing_yield
-
     from models.evaluate import evaluate
 
     from .exhaustive import exhaustive_front
@@ -316,9 +315,7 @@ def sweep_provenance(document: dict) -> list[str]:
         if document["complete"]
         else "Completeness: not proven at every value (an evaluation cap was reached)."
     )
-    lines.append(
-        f"Baselines at depths 1 to {document['depth']}, the same depths as the search."
-    )
+    lines.append(f"Baselines at depths 1 to {document['depth']}, the same depths as the search.")
     return lines
 
 

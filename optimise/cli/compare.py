@@ -1,4 +1,4 @@
-"""``stillroom compare``: recipes on one profile, or one recipe on several profiles, side by side."""
+"""``stillroom compare``: recipes on one profile, or a recipe on several profiles, side by side."""
 
 from __future__ import annotations
 

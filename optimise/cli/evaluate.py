@@ -97,8 +97,12 @@ def run(args) -> int:
         same = written == result.notation
         out.print(
             f"as written: {args.recipe}{built}"
-            + ("" if same else f"; canonical form {result.notation}: "
-               + why_canonical(written, result.notation))
+            + (
+                ""
+                if same
+                else f"; canonical form {result.notation}: "
+                + why_canonical(written, result.notation)
+            )
         )
     print_trace(out, recipe, profile, stories)
     out.print(

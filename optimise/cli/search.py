@@ -215,7 +215,11 @@ def start_message(run_dir, settings) -> str:
         "no exhaustive layer"
         if exhaustive == 0
         else "every linear recipe evaluated exactly "
-        + (f"to depth {exhaustive}" if exhaustive else "as deep as the automatic cap on evaluations allows")
+        + (
+            f"to depth {exhaustive}"
+            if exhaustive
+            else "as deep as the automatic cap on evaluations allows"
+        )
     )
     limits = settings.limits.describe()
     return (

@@ -82,7 +82,6 @@ def add_parser(sub, parents) -> None:
 def run(args) -> int:
     profile, label = common.profile_or_demo(args.profile)
     from .. import sweep as sweeping
-
     from .evaluate import resolve_recipe
 
     followed = [(text, resolve_recipe(text)) for text in args.recipe]

@@ -97,7 +97,7 @@ def print_tables(out, front, *, top: int, targets) -> None:
     from rich.table import Table
 
     from ..labels import fmt_number
-    from ..reports import RATE_HEADER, report_rows, has_pair_rate, rate_cell, recipe_cells
+    from ..reports import has_pair_rate, rate_cell, recipe_cells, report_rows
 
     rows, baselines, target_table = report_rows(front, top, targets)
     rate = has_pair_rate(front.profile)
@@ -137,11 +137,21 @@ def print_tables(out, front, *, top: int, targets) -> None:
     if target_table:
         out.print()
         t = Table(
-            title="Cheapest recipe per target", title_justify="left", header_style="bold",
-            box=None, pad_edge=False,
+            title="Cheapest recipe per target",
+            title_justify="left",
+            header_style="bold",
+            box=None,
+            pad_edge=False,
         )
-        for name in ("target F", "recipe", "fidelity F", "raw / out", "best baseline",
-                     "raw / out", "saving"):
+        for name in (
+            "target F",
+            "recipe",
+            "fidelity F",
+            "raw / out",
+            "best baseline",
+            "raw / out",
+            "saving",
+        ):
             t.add_column(name, justify="left" if name in ("recipe", "best baseline") else "right")
         for row in target_table:
             mine = row.recipe

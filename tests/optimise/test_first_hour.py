@@ -104,7 +104,9 @@ def test_evaluate_explains_each_dejmps_round(werner_profile, capsys):
     # the Y rotation exchanges Y and Z of the input (0.1 each), so the removed weights
     # are the input's minus the output's; the plain check copies in Phi- (Z)
     removed = first["removed"]
-    np.testing.assert_allclose([removed["X"], removed["Y"], removed["Z"]], 0.1 - out[1:], atol=1e-12)
+    np.testing.assert_allclose(
+        [removed["X"], removed["Y"], removed["Z"]], 0.1 - out[1:], atol=1e-12
+    )
     assert removed["Z"] < 0
     assert first["gate_noise"] == pytest.approx(0, abs=1e-12)
     assert first["memory_noise"] == pytest.approx(0, abs=1e-12)
@@ -116,7 +118,9 @@ def test_gate_noise_is_the_depolarised_share(tmp_path, capsys):
     # Zoller, PRA 59, 169 (1999)); a uniform joint input passes the check with
     # probability 1/2 and leaves the kept pair uniform (F = 1/4)
     path = tmp_path / "gates.toml"
-    path.write_text('name = "gates"\n[raw_pair]\nwerner_fidelity = 0.7\n[operations]\ntwo_qubit = 0.9\n')
+    path.write_text(
+        'name = "gates"\n[raw_pair]\nwerner_fidelity = 0.7\n[operations]\ntwo_qubit = 0.9\n'
+    )
     assert main(["evaluate", "sY", str(path), "--json"]) == 0
     step = json.loads(capsys.readouterr().out)["steps"][0]
     s = 0.81

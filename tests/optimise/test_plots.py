@@ -57,9 +57,9 @@ def test_front_points_are_the_front(front):
         ax = fig.axes[0]
         assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
         assert ORIENTATION in ax.get_title(loc="left")
-        assert "infidelity" in ax.get_ylabel() and "raw pairs" in fig.axes[0].get_xlabel() + " ".join(
-            a.get_xlabel() for a in fig.axes
-        )
+        assert "infidelity" in ax.get_ylabel() and "raw pairs" in fig.axes[
+            0
+        ].get_xlabel() + " ".join(a.get_xlabel() for a in fig.axes)
         raw = np.asarray(artist(fig, "raw").get_offsets())
         np.testing.assert_allclose(raw, [[1.0, 1 - front.raw_fidelity]])
     finally:
@@ -74,7 +74,9 @@ def test_baselines_are_drawn_by_name_with_their_depths(front):
         for name in {b.name for b in front.baselines}:
             members = sorted((b for b in front.baselines if b.name == name), key=lambda b: b.depth)
             line = artist(fig, f"baseline:{name}")
-            np.testing.assert_allclose(line.get_xdata(), [b.result.raw_pairs_per_output for b in members])
+            np.testing.assert_allclose(
+                line.get_xdata(), [b.result.raw_pairs_per_output for b in members]
+            )
             np.testing.assert_allclose(line.get_ydata(), [1 - b.result.fidelity for b in members])
             assert line.get_label() in ("DEJMPS", "pumping")
             for b in members:

@@ -21,13 +21,13 @@ from cli_support import REPO, png_size, svg_size, validate
 from optimise.cli import build_parser, main
 from optimise.errors import RunError
 from optimise.files import write_json_atomic
+from optimise.latex import latex_escape
 from optimise.plots import PNG_PIXELS, SVG_POINTS
 from optimise.profiles import demo_profile
 from optimise.reports import (
     ASSUMPTIONS,
     CSV_COLUMNS,
     REPORT_FILES,
-    latex_escape,
     raw_hashing_yield,
     write_reports,
 )

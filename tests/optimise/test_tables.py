@@ -16,8 +16,9 @@ from test_reports import make_run
 from optimise.cli import main
 from optimise.files import write_json_atomic
 from optimise.front import Front
-from optimise.reports import ASSUMPTIONS, TEX_RECIPE_CHARS, table_md, table_tex, write_reports
-from optimise.rows import cover, group_identical, Row
+from optimise.latex import TEX_RECIPE_CHARS, table_tex
+from optimise.reports import ASSUMPTIONS, table_md, write_reports
+from optimise.rows import Row, cover, group_identical
 
 
 @pytest.fixture(scope="module")
@@ -128,7 +129,9 @@ def test_identical_figures_share_a_row_shown_by_the_shortest_string(wide_front):
 def test_target_rows_name_the_cheapest_recipe_and_baseline(wide_front):
     _, front = wide_front
     md = table_md(front, targets=[0.95, 0.97, 0.999])
-    lines = {line.split("|")[1].strip(): line for line in md.splitlines() if line.startswith("| 0.9")}
+    lines = {
+        line.split("|")[1].strip(): line for line in md.splitlines() if line.startswith("| 0.9")
+    }
     for t in (0.95, 0.97):
         mine = min(
             (r for r in front.results if r.fidelity >= t), key=lambda r: r.raw_pairs_per_output
@@ -169,8 +172,15 @@ def test_every_table_carries_its_provenance(wide_front):
 def test_latex_uses_math_mode_booktabs_and_fits_a_column(wide_front):
     _, front = wide_front
     tex = table_tex(front, targets=[0.95])
-    for needed in ("$F$", "$1 - S(p)", r"\toprule", r"\midrule", r"\bottomrule", r"\caption{",
-                   r"\label{tab:stillroom-demo-metro}"):
+    for needed in (
+        "$F$",
+        "$1 - S(p)",
+        r"\toprule",
+        r"\midrule",
+        r"\bottomrule",
+        r"\caption{",
+        r"\label{tab:stillroom-demo-metro}",
+    ):
         assert needed in tex
     body = tex[tex.index(r"\begin{tabular}{@{}r") : tex.index(r"\bottomrule")]
     columns = re.search(r"\\begin\{tabular\}\{@\{\}(\w+)@\{\}\}", body).group(1)
