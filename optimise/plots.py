@@ -444,6 +444,14 @@ def baseline_style(name: str) -> tuple[str, str]:
 # the cheapest recipe per target (sweep plots) and the recipes a sweep follows
 TARGET_STYLES = ((BLUE, "o"), (GREEN, "s"), (PURPLE, "^"), (ORANGE, "D"))
 FOLLOWED_STYLES = ((BLACK, "o"), (BLACK, "s"), (BLACK, "^"), (BLACK, "D"))
+# references (baselines) are dashed with hollow markers; followed recipes solid
+REFERENCE_LINE = {
+    "markersize": 3,
+    "markerfacecolor": "white",
+    "linewidth": 0.8,
+    "linestyle": (0, (2, 2)),
+}
+FOLLOWED_LINE = {"markersize": 3, "linewidth": 1.0}
 
 
 def write_front_plots(front, stem, *, targets=()) -> list[Path]:
@@ -516,10 +524,7 @@ def sweep_figure(sweep: dict):
             ys,
             color=colour,
             marker=marker,
-            markersize=3,
-            markerfacecolor="white",
-            linewidth=0.8,
-            linestyle=(0, (2, 2)),
+            **REFERENCE_LINE,
             label=f"{baseline_title(name)}, best depth",
             gid=f"sweep:baseline:{name}",
         )
@@ -532,8 +537,7 @@ def sweep_figure(sweep: dict):
             ys,
             color=colour,
             marker=marker,
-            markersize=3,
-            linewidth=1.0,
+            **FOLLOWED_LINE,
             label=f"{recipe['label']} (followed)",
             gid=f"sweep:recipe:{k}",
         )
@@ -567,10 +571,7 @@ def sweep_figure(sweep: dict):
             bys,
             color=colour,
             marker=marker,
-            markersize=3,
-            markerfacecolor="white",
-            linewidth=0.8,
-            linestyle=(0, (2, 2)),
+            **REFERENCE_LINE,
             label=f"below: cheapest baseline, F >= {target:g}",
             gid=f"sweep:baseline-target:{target:g}",
         )
@@ -583,8 +584,7 @@ def sweep_figure(sweep: dict):
             ys,
             color=colour,
             marker=marker,
-            markersize=3,
-            linewidth=1.0,
+            **FOLLOWED_LINE,
             gid=f"sweep:recipe-cost:{k}",
         )
     bottom.set_yscale("log")
