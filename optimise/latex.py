@@ -202,14 +202,18 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
         lines.append(
             "  Baselines are shown in canonical form. "
             + " ".join(
-                r"\texttt{"
-                + latex_escape(built)
-                + r"} reads \texttt{"
-                + latex_escape(canonical)
-                + "}: "
+                " and ".join(
+                    r"\texttt{"
+                    + latex_escape(built)
+                    + r"} reads \texttt{"
+                    + latex_escape(canonical)
+                    + "}"
+                    for built, canonical in pairs
+                )
+                + ": "
                 + latex_escape(why)
                 + "."
-                for built, canonical, why in reasons
+                for pairs, why in reasons
             )
             + r"\\"
         )

@@ -401,8 +401,9 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
             label = row.label + (f" (also: {', '.join(row.also)})" if row.also else "")
             lines.append("| " + " | ".join([label] + cells) + " |")
         reasons = [
-            f"`{built}` reads `{canonical}`: {why}."
-            for built, canonical, why in canonical_notes(baselines, front.baselines)
+            " and ".join(f"`{built}` reads `{canonical}`" for built, canonical in pairs)
+            + f": {why}."
+            for pairs, why in canonical_notes(baselines, front.baselines)
         ]
         if reasons:
             lines += ["", "Baselines are shown in canonical form. " + " ".join(reasons)]

@@ -276,19 +276,20 @@ def _cheapest(find, results, target, limits):
     return answer.recipe
 
 
-def canonical_notes(rows: list[Row], baselines) -> list[tuple[str, str, str]]:
-    """``(built, canonical, why)`` for each shown baseline whose recipe reads otherwise than built.
+def canonical_notes(rows: list[Row], baselines) -> list[tuple[list[tuple[str, str]], str]]:
+    """Shown baselines whose recipe reads otherwise than built, grouped by the reason.
 
     ``rows`` are the baseline rows a table shows (merged rows included through
-    their ``also``); each distinct spelling is explained once.
+    their ``also``). Returns ``[([(built, canonical), ...], why), ...]``: each
+    spelling once, each reason once.
     """
-    shown = " | ".join(row.label + " " + " ".join(row.also) for row in rows)
-    notes = {}
+    shown = {row.label for row in rows}
+    shown |= {text.split(" (built as ")[0] for row in rows for text in row.also}
+    notes: dict[str, list[tuple[str, str]]] = {}
     for b in baselines:
-        label = baseline_label(b.name, b.depth)
         built = built_recipe(b.name, b.depth)
-        if label in shown and built and built != b.result.notation:
-            notes.setdefault(
-                built, (built, b.result.notation, why_canonical(built, b.result.notation))
-            )
-    return list(notes.values())
+        if baseline_label(b.name, b.depth) in shown and built and built != b.result.notation:
+            pairs = notes.setdefault(why_canonical(built, b.result.notation), [])
+            if (built, b.result.notation) not in pairs:
+                pairs.append((built, b.result.notation))
+    return [(pairs, why) for why, pairs in notes.items()]
