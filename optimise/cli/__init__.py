@@ -14,13 +14,13 @@ from __future__ import annotations
 import argparse
 import sys
 
-from . import evaluate, profile, search, sweep, table, verify
+from . import compare, evaluate, profile, search, sweep, table, verify
 from .common import Formatter, parse_duration
 from .evaluate import RECIPE_HELP, resolve_recipe
 
 __all__ = ["main", "build_parser", "parse_duration", "resolve_recipe", "RECIPE_HELP"]
 
-COMMANDS = (profile, search, evaluate, sweep, table, verify)
+COMMANDS = (profile, search, evaluate, compare, sweep, table, verify)
 
 MAIN_HELP = """\
 Search entanglement-purification recipes for noisy Bell pairs.

@@ -103,6 +103,9 @@ def add_parser(sub, parents) -> None:
         default=SAMPLERS[0],
         help="optuna sampler (default: %(default)s)",
     )
+    from .table import add_row_options
+
+    add_row_options(p)
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(handler=run)
 
@@ -135,7 +138,8 @@ def run(args) -> int:
     run_dir = Path(args.runs_dir) / (args.name or common.slug(profile.name))
     out = common.console(stderr=args.json)
     if not args.json:
-        out.print(f"profile: {label}; run folder: {run_dir}")
+        out.print(f"profile: {label}")
+        out.print(start_message(run_dir, settings))
     try:
         with InterruptWatch():
             outcome = run_search(
@@ -144,7 +148,7 @@ def run(args) -> int:
     except KeyboardInterrupt:
         print(INTERRUPTED, file=sys.stderr)
         return 130
-    written = write_reports(run_dir)
+    written = write_reports(run_dir, top=args.top, targets=args.targets)
     if args.json:
         common.print_json(
             {
@@ -171,8 +175,10 @@ def run(args) -> int:
             else ""
         )
     )
-    title = f"Pareto front ({len(outcome.front)} recipes, fidelity first)"
-    common.print_front(out, outcome.front, outcome.baselines, title)
+    from ..run import Run
+    from .table import print_tables
+
+    print_tables(out, Run(run_dir).read_front(), top=args.top, targets=args.targets)
     if outcome.target is not None:
         out.print()
         out.print(
@@ -185,6 +191,42 @@ def run(args) -> int:
     common.print_written(out, written, run_dir)
     common.print_assumptions(out)
     return 0
+
+
+def start_message(run_dir, settings) -> str:
+    """What this run will do: resume a study (and how far it is), or start one (and where)."""
+    from ..labels import fmt_time
+    from ..run import Run
+
+    run = Run(run_dir)
+    budget = f"{settings.n_trials} trials" + (
+        f" or {fmt_time(settings.timeout_s)} of wall time" if settings.timeout_s else ""
+    )
+    if run.has_front():
+        done = run.read_front().n_trials or 0
+        if done >= settings.n_trials:
+            return (
+                f"{run_dir} already holds {done} of {settings.n_trials} trials: nothing left to "
+                "search, the reports are rewritten (a larger --trials extends the study)"
+            )
+        return f"resuming {run_dir}: {done} of {settings.n_trials} trials done"
+    exhaustive = settings.exhaustive_depth
+    layer = (
+        "no exhaustive layer"
+        if exhaustive == 0
+        else "every linear recipe evaluated exactly "
+        + (
+            f"to depth {exhaustive}"
+            if exhaustive
+            else "as deep as the automatic cap on evaluations allows"
+        )
+    )
+    limits = settings.limits.describe()
+    return (
+        f"new search: recipes of 1 to {settings.max_depth} rounds ({layer}, then sampled by "
+        f"{settings.sampler}); objectives {', '.join(settings.objectives)}; {limits}; budget "
+        f"{budget}; writes {run_dir}"
+    )
 
 
 class InterruptWatch:
