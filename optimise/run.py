@@ -30,6 +30,7 @@ import json
 import math
 import os
 import re
+import time
 from contextlib import contextmanager
 from datetime import UTC, datetime
 from pathlib import Path
@@ -277,6 +278,8 @@ class Run:
     def _acquire(self, path: Path):
         if fcntl is None:
             return None
+        me = worker_identity()  # before locking: the holder's name is written at once
+        me["since"] = now_iso()
         while True:
             try:
                 handle = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
@@ -296,18 +299,19 @@ class Run:
             if same:  # not a file its last holder removed while we opened it
                 break
             os.close(handle)
-        me = worker_identity()
-        me["since"] = now_iso()
         os.ftruncate(handle, 0)
         os.write(handle, json.dumps(me).encode())
         return handle
 
     def _held_message(self, path: Path) -> str:
-        try:
-            holder = json.loads(path.read_text(encoding="utf-8"))
-            who = f"process {holder['pid']} on {holder['host']} (since {holder['since']})"
-        except (OSError, ValueError, KeyError, TypeError):
-            who = "another process"
+        who = "another process"
+        for _ in range(20):  # a holder that has just locked writes its name a moment later
+            try:
+                holder = json.loads(path.read_text(encoding="utf-8"))
+                who = f"process {holder['pid']} on {holder['host']} (since {holder['since']})"
+                break
+            except (OSError, ValueError, KeyError, TypeError):
+                time.sleep(0.05)
         return (
             f"run folder {self.folder} is in use by the search of {who}; wait for it to end, "
             f"or start another run (--name {self.name}-2). Several workers share a study "
