@@ -33,15 +33,26 @@ class Objective:
     COMPLETE in the study (by ``recipe_id``, whichever process ran it), or being
     evaluated by a trial of lower number, is told PRUNED with ``repeat_of`` naming
     that trial. It counts towards the budget (so a study of a small space ends) but
-    costs no evaluation and never enters the front twice.
+    never enters the front twice. The check is made when the recipe is drawn and,
+    on a storage ``shared`` with other processes, again after its evaluation, for
+    two processes that drew it at the same moment.
     """
 
-    def __init__(self, profile, *, max_depth: int, objectives, limits: Limits):
+    def __init__(self, profile, *, max_depth: int, objectives, limits: Limits, shared=False):
+        self.shared = shared
         self.profile = profile
         self.max_depth = max_depth
         self.objectives = tuple(objectives)
         self.limits = limits
         self.worker = worker_identity()
+
+    @staticmethod
+    def _skip_repeat(trial, recipe) -> None:
+        first = repeat_of(trial.study, recipe.recipe_id, trial.number)
+        if first is not None:
+            trial.set_user_attr("recipe", recipe.notation)
+            trial.set_user_attr(REPEAT_ATTR, first)
+            raise optuna.TrialPruned(f"recipe {recipe.notation} is trial {first}'s")
 
     def __call__(self, trial):
         checkpoint("ask")
@@ -53,17 +64,15 @@ class Objective:
             raise
         # recorded before the evaluation, so that other processes see it is taken
         trial.set_user_attr("recipe_id", recipe.recipe_id)
-        first = repeat_of(trial.study, recipe.recipe_id, trial.number)
-        if first is not None:
-            trial.set_user_attr("recipe", recipe.notation)
-            trial.set_user_attr(REPEAT_ATTR, first)
-            raise optuna.TrialPruned(f"recipe {recipe.notation} is trial {first}'s")
+        self._skip_repeat(trial, recipe)
         try:
             result = evaluate(recipe, self.profile)
         except Exception as error:
             trial.set_user_attr(ERROR_ATTR, f"{type(error).__name__}: {error}")
             raise
         record(trial, result, self.limits)
+        if self.shared:  # again, last: another process may have drawn it in the same instant
+            self._skip_repeat(trial, recipe)
         return objective_values(result, self.objectives)
 
 

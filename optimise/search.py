@@ -14,6 +14,7 @@ from __future__ import annotations
 import multiprocessing
 import os
 import signal
+import socket
 import sys
 import time
 from dataclasses import dataclass
@@ -28,9 +29,9 @@ from .tracker import FrontTracker
 from .limits import Limits
 from .objective import Objective
 from .objectives import directions
-from .processes import StopRequest, checkpoint, parent_alive, worker_identity
+from .processes import StopRequest, checkpoint, is_running, parent_alive, worker_identity
 from .progress import SearchProgress
-from .resume import fail_stale_trials, reask_abandoned, register_worker
+from .resume import fail_stale_trials, reask_abandoned, register_worker, registered_workers
 from .run import Run, load_run, same_values
 from .samplers import SlotSeededSampler, finished_count
 from .seeding import enqueue_known, exhaustive_layer
@@ -323,23 +324,40 @@ class _Between:
             study.stop()
 
 
-def _objective(profile, settings: SearchSettings) -> Objective:
+def _objective(profile, settings: SearchSettings, shared: bool) -> Objective:
     return Objective(
         profile,
         max_depth=settings.depth_cap,
         objectives=settings.objectives,
         limits=settings.limits,
+        shared=shared,
     )
 
 
+def worker_offset(study, me: dict) -> int:
+    """Which seeds this process draws from, on a storage shared with other processes.
+
+    The number of other processes registered on the study and not known to be gone
+    (see :mod:`optimise.resume`): a lone process draws as a single worker does (0),
+    so its run is reproducible; processes working at the same time draw apart.
+    """
+    others = registered_workers(study, besides=me)
+    here = socket.gethostname()
+    return sum(1 for w in others if w.get("host") != here or is_running(w))
+
+
 def _optimize_here(study, profile, settings, spec, left, tracker, bar, stop):
+    if spec.shared:
+        offset = worker_offset(study, worker_identity())
+        study.sampler = SlotSeededSampler(settings.sampler_settings, worker=offset)
+
     def after(study, trial):
         if tracker.add_trial(trial):
             tracker.write(None)
         bar.update(bar.done + 1, tracker.best_fidelity(), tracker.size())
 
     study.optimize(
-        _objective(profile, settings),
+        _objective(profile, settings, spec.shared),
         n_trials=max(0, settings.n_trials - budget_used(study)),
         timeout=left,
         callbacks=[_Between(settings.n_trials, spec.shared, lambda: stop.requested, after)],
@@ -358,6 +376,7 @@ class WorkerJob:
     worker: int
     timeout_s: float | None
     parent_pid: int = 0
+    offset: int = 0
 
 
 def worker_main(job: WorkerJob, stop_event=None) -> int:
@@ -372,7 +391,8 @@ def worker_main(job: WorkerJob, stop_event=None) -> int:
     profile = Profile.from_dict(job.profile)
     settings = job.settings
     run = Run(job.run_dir)
-    study = _open_study(open_resolved(job.storage), job.storage, run, settings, profile, job.worker)
+    worker = job.offset * settings.workers + job.worker
+    study = _open_study(open_resolved(job.storage), job.storage, run, settings, profile, worker)
     register_worker(study, worker_identity())
 
     def asked_to_stop():
@@ -382,7 +402,7 @@ def worker_main(job: WorkerJob, stop_event=None) -> int:
     if asked_to_stop() or budget_used(study) >= settings.n_trials:
         return 0
     study.optimize(
-        _objective(profile, settings),
+        _objective(profile, settings, True),
         n_trials=None,
         timeout=job.timeout_s,
         callbacks=[_Between(settings.n_trials, True, asked_to_stop)],
@@ -404,8 +424,10 @@ def _worker_entry(job, stop_event):
 def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
     context = multiprocessing.get_context("spawn")
     stop_event = context.Event()
+    monitor = _open_study(open_resolved(spec), spec, run, settings, profile)
+    offset = worker_offset(monitor, worker_identity())
     jobs = [
-        WorkerJob(settings, profile.to_dict(), spec, str(run.folder), i, left, os.getpid())
+        WorkerJob(settings, profile.to_dict(), spec, str(run.folder), i, left, os.getpid(), offset)
         for i in range(settings.workers)
     ]
     processes = [
@@ -413,7 +435,6 @@ def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
     ]
     for p in processes:
         p.start()
-    monitor = _open_study(open_resolved(spec), spec, run, settings, profile)
     try:
         while any(p.is_alive() for p in processes):
             if stop.requested:
