@@ -216,8 +216,8 @@ class Run:
 
     # ------------------------------------------------------------------ ownership
 
-    def make_folder(self) -> bool:
-        """Create the run folder (and its parents); True if it did not exist.
+    def make_folder(self) -> Path | None:
+        """Create the run folder (and its parents); the topmost folder made, or None.
 
         Raises
         ------
@@ -226,9 +226,12 @@ class Run:
             no permission, a read-only file system).
         """
         if self.folder.is_dir():
-            return False
+            return None
         if self.folder.exists():
             raise InputError(f"run folder {self.folder}: exists and is not a folder")
+        top = self.folder
+        while not top.parent.exists() and top.parent != top:
+            top = top.parent
         try:
             self.folder.mkdir(parents=True)
         except FileExistsError:
@@ -236,12 +239,12 @@ class Run:
                 raise InputError(
                     f"run folder {self.folder}: a file is in the way of the folder"
                 ) from None
-            return False  # made by another process meanwhile
+            return None  # made by another process meanwhile
         except OSError as error:
             raise InputError(
                 f"run folder {self.folder}: cannot be made ({error.strerror or error})"
             ) from error
-        return True
+        return top
 
     @contextmanager
     def lock(self):
@@ -318,12 +321,19 @@ class Run:
             "through --workers, or --storage on several machines"
         )
 
-    def _remove_if_empty(self, created: bool) -> None:
-        if created:
+    def _remove_if_empty(self, created: Path | None) -> None:
+        """Remove the folders :meth:`make_folder` made, up to ``created``, if still empty."""
+        if created is None:
+            return
+        folder = self.folder
+        while True:
             try:
-                self.folder.rmdir()
+                folder.rmdir()
             except OSError:
-                pass  # something was written after all: keep it
+                return  # something was written after all: keep it
+            if folder == created:
+                return
+            folder = folder.parent
 
     # ------------------------------------------------------------------ settings
 
