@@ -23,6 +23,9 @@ recipe strings: rounds joined by '.', applied left to right to a raw pair.
   e.g. sY^3, sZ~^2, pY^4, pZ.pX.pZ.pX, 'sY^2.pY(sY)' (quote parentheses)
 A textbook baseline may be given as NAME:DEPTH, e.g. dejmps:3 (names: bbpssw,
 dejmps, pumping, alternating-pumping, double-selection-pumping).
+Limits (models.notation.LIMITS_SENTENCE): a recipe has at most 64 rounds in all
+(sources included), a repeat count of at most 64, sources nested at most 8 deep
+and at most 1000 characters.
 """
 
 
@@ -54,6 +57,13 @@ def resolve_recipe(text: str):
 
     from ..errors import user_input
 
+    if text.lower().endswith(".toml"):
+        from ..errors import InputError
+
+        raise InputError(
+            f"{text!r} is a profile, not a recipe: the recipe comes first "
+            "(stillroom evaluate RECIPE [PROFILE])"
+        )
     with user_input():
         if ":" in text:
             name, _, depth = text.partition(":")

@@ -82,7 +82,10 @@ def test_bad_options_exit_2_and_write_nothing(tmp_path, monkeypatch, capsys, arg
 def test_bad_recipe_points_at_the_error(capsys):
     assert main(["evaluate", "sY.q"]) == 2
     err = capsys.readouterr().err
-    assert err.startswith("stillroom: ") and "^" in err and "Traceback" not in err
+    assert err.startswith("stillroom: ") and "column 4" in err and err.count("\n") == 1
+    assert main(["evaluate", "sY.q", "--verbose"]) == 2  # the caret diagram on request
+    err = capsys.readouterr().err
+    assert err.splitlines()[1:] == ["  sY.q", "     ^"] and "Traceback" not in err
 
 
 def test_unknown_baseline_suggests_a_name(capsys):
