@@ -139,6 +139,10 @@ def whole_number_at_least(low: int, high: int | None = None):
 
 
 positive_int = whole_number_at_least(1)
+# outputs a re-simulation samples: enough for a 1e-5 standard error on a fidelity,
+# and a bound, so that a mistyped count cannot run for days
+MAX_SAMPLES = 10_000_000
+sample_count = whole_number_at_least(2, MAX_SAMPLES)
 non_negative_int = whole_number_at_least(0)
 
 

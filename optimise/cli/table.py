@@ -39,7 +39,7 @@ def add_parser(sub, parents) -> None:
         "--verify",
         nargs="?",
         const=500,
-        type=common.whole_number_at_least(2),
+        type=common.sample_count,
         metavar="N",
         help="add a verified column: each front recipe re-simulated with full density "
         "matrices (N outputs sampled where waits are random; default 500)",

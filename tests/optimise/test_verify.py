@@ -245,3 +245,11 @@ def test_verify_help_has_examples(capsys):
     out = capsys.readouterr().out
     assert "stillroom verify" in out.split("examples:")[1]
     assert "--samples" in out and "--seed" in out and "--json" in out
+
+
+@pytest.mark.parametrize("count", ["1", "99999999999", "-3", "lots"])
+def test_cli_sample_count_outside_its_range_is_one_line(count, capsys):
+    # bad input: exit 2 and one line naming the option (common practice, no source)
+    assert main(["verify", "sY", "--samples", count]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "--samples" in err
