@@ -391,9 +391,7 @@ def _term_weights(circuit: StepCircuit, s, q, u=1.0):
         _power(q, bin(f).count("1")) * _power(1.0 - q, n_checks - bin(f).count("1"))
         for f in range(2**n_checks)
     ]
-    check_weights = [
-        sum(flips[m ^ a] for a in circuit.accepted) for m in range(2**n_checks)
-    ]
+    check_weights = [sum(flips[m ^ a] for a in circuit.accepted) for m in range(2**n_checks)]
     return [
         [
             _power(s, n_cnots - k)
