@@ -210,7 +210,7 @@ class CircuitSyntaxError(ValueError):
 
 
 def parse_circuit(text: str) -> tuple[GeneralCircuit, tuple[int, ...]]:
-    """Read a compact form: the canonical circuit and the relabelling (see :func:`canonical_circuit`)."""
+    """Read a compact form: the canonical circuit and its relabelling (see canonical_circuit)."""
 
     def fail(why):
         raise CircuitSyntaxError(
