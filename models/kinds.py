@@ -8,6 +8,14 @@ form (sacrificed pairs copies of the pair made so far). The recipe dataclasses,
 the notation, the single-recipe evaluator, the batched chain and the search
 space all read :data:`STEP_KINDS`; nothing else dispatches on a kind's name.
 
+General check rounds over two to five pairs (:mod:`models.circuits`) are kinds
+too, registered on demand: their ``selection`` is their canonical compact form
+(``"4:01,02,03/ZZZ/000"``), so a recipe naming one carries everything needed to
+rebuild it, and :func:`step_kind` (and so :class:`models.recipes.Round`)
+registers it the first time it is named. Their tokens are ``c{form}``
+(sacrificed pairs fresh or from a source) and ``cs{form}`` (copies of the pair
+so far). :data:`BUILT_IN` lists the kinds present at import.
+
 Adding a kind is one entry here (its circuit in :mod:`models.steps`); the
 contributor guide lists what else a new kind touches (its reference circuit in
 the tests). A new kind starts with no canonical-form rules, which stays exact
@@ -67,21 +75,67 @@ STEP_KINDS: dict[str, StepKind] = {
     )
 }
 SELECTIONS: tuple[str, ...] = tuple(STEP_KINDS)
+# the kinds present at import; general rounds registered later are not among them
+BUILT_IN: tuple[str, ...] = SELECTIONS
 # inputs per step, kept pair included
 N_INPUTS: dict[str, int] = {name: kind.n_inputs for name, kind in STEP_KINDS.items()}
+
+
+# general rounds by id, for the short form c{#id}
+BY_ID: dict[str, str] = {}
+
+
+def register_circuit(circuit) -> StepKind:
+    """Register a general round (a :class:`models.circuits.GeneralCircuit`) as a kind.
+
+    Registering the same circuit again returns the kind already registered.
+    """
+    known = STEP_KINDS.get(circuit.text)
+    if known is not None:
+        return known
+    kind = StepKind(
+        circuit.text,
+        circuit.step,
+        "c{" + circuit.text + "}",
+        "cs{" + circuit.text + "}",
+        f"{circuit.n_pairs}->1 check round {circuit.circuit_id}",
+    )
+    STEP_KINDS[kind.selection] = kind
+    N_INPUTS[kind.selection] = kind.n_inputs
+    BY_ID[circuit.circuit_id] = kind.selection
+    return kind
 
 
 def step_kind(selection: str) -> StepKind:
     """The registered kind named ``selection``; ValueError naming the allowed names.
 
+    A canonical compact form of a general round (:mod:`models.circuits`) is
+    registered on demand; a form that is not canonical is refused with its
+    canonical spelling (the rotations of a round follow the relabelling, so
+    only the recipe parser may rewrite one).
+
     Examples
     --------
     >>> step_kind("double").n_inputs
     3
+    >>> step_kind("4:01,02,03/ZZX/000").n_inputs
+    4
     """
     try:
         return STEP_KINDS[selection]
     except (KeyError, TypeError):
-        raise ValueError(
-            f"selection = {selection!r} is not a step kind; use one of {', '.join(SELECTIONS)}"
-        ) from None
+        pass
+    if isinstance(selection, str) and ":" in selection:
+        from .circuits import parse_circuit
+
+        circuit, _ = parse_circuit(selection)
+        if circuit.text != selection:
+            raise ValueError(
+                f"selection = {selection!r} is a general round not in canonical form; "
+                f"write {circuit.text!r} (pairs renamed: reorder the rotations to match)"
+            )
+        return register_circuit(circuit)
+    raise ValueError(
+        f"selection = {selection!r} is not a step kind; use one of {', '.join(SELECTIONS)} "
+        "or the compact form of a general round such as '4:01,02,03/ZZX/000'"
+    )

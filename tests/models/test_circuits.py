@@ -126,3 +126,38 @@ def test_canonical_text_and_id():
 def test_malformed_forms_are_refused(text):
     with pytest.raises(CircuitSyntaxError):
         parse_circuit(text)
+
+
+# ------------------------------------------------------------ in recipe strings
+def test_recipe_strings_carry_general_rounds():
+    from models.notation import parse_recipe, recipe_from_json, recipe_to_json
+
+    r = parse_recipe("c{3:02,12/XZ/00}ZXY.sY")
+    # pairs 1 and 2 are renamed in the canonical circuit, and their rotations with them
+    assert r.notation == "c{3:01,21/ZX/00}ZYX.sY"
+    assert parse_recipe(r.notation) == r
+    assert recipe_from_json(recipe_to_json(r)) == r
+    circuit = read_circuit("3:01,21/ZX/00")
+    assert parse_recipe("c{#" + circuit.circuit_id + "}ZYX.sY") == r
+    assert parse_recipe("cs{4:01,02,03/ZZX/000}Y").rounds[0].sacrificed == "same"
+
+
+def test_general_form_of_double_selection_evaluates_as_double_selection():
+    # the registry, the waiting module and the evaluator treat both spellings alike,
+    # memory waits included
+    from models.evaluate import evaluate
+    from optimise.profiles import demo_profile
+
+    a = evaluate("dpZYX.sY", demo_profile())
+    b = evaluate("c{3:01,21/ZX/00}ZYX.sY", demo_profile())
+    assert_allclose(b.fidelity, a.fidelity, rtol=1e-12)
+    assert_allclose(b.raw_pairs_per_output, a.raw_pairs_per_output, rtol=1e-12)
+
+
+def test_unknown_id_and_unclosed_round_are_refused():
+    from models.notation import RecipeSyntaxError, parse_recipe
+
+    with pytest.raises(RecipeSyntaxError, match="id of a general round"):
+        parse_recipe("c{#0000000000}")
+    with pytest.raises(RecipeSyntaxError, match="to close the general round"):
+        parse_recipe("c{3:01,21/ZX/00")
