@@ -57,8 +57,8 @@ References
 from __future__ import annotations
 
 from .canonical_form import canonical
-from .formatting import RAW_TWIRL, format_recipe
 from .circuits import CircuitSyntaxError, parse_circuit
+from .formatting import RAW_TWIRL, format_recipe
 from .kinds import BY_ID, STEP_KINDS, register_circuit
 from .recipes import Recipe, Round
 from .rotations import ROTATION_NAMES
