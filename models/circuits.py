@@ -8,14 +8,14 @@ fall in an accepted set. The 2->1 check and double selection are members.
 
 Compact form (our own notation)::
 
-    form     := n ':' gates '/' bases '/' accepted
+    form     := gates '/' bases '/' accepted
     gates    := (gate (',' gate)*)?            in the order applied
     gate     := digit digit                    CNOT, control pair then target pair
               | digit rot                      rotation of a pair (Z z Y y X x)
-    bases    := ('Z' | 'X'){n - 1}             basis of pairs 1 .. n-1
+    bases    := ('Z' | 'X'){n - 1}             basis of pairs 1 .. n-1 (n pairs in all)
     accepted := bits (',' bits)*               reported parities kept, pair 1 first
 
-The 2->1 check is ``2:01/Z/0``, double selection ``3:01,21/ZX/00``. In a recipe
+The 2->1 check is ``01/Z/0``, double selection ``01,21/ZX/00``. In a recipe
 string a general round is written ``c{form}`` when its sacrificed pairs are fresh
 raw pairs or made by a source, and ``cs{form}`` when they are copies of the pair
 made so far; ``c{#id}`` and ``cs{#id}`` name a round already known to this
@@ -32,11 +32,11 @@ id is the first 10 hex digits of the SHA-256 of the canonical form.
 
 Examples
 --------
->>> c = read_circuit("3:21,01/ZX/00")
+>>> c = read_circuit("01,21/ZX/00")
 >>> c.text, c.n_pairs
-('3:01,21/ZX/00', 3)
->>> read_circuit("3:02,12/XZ/00").text  # pairs 1 and 2 relabelled
-'3:01,21/ZX/00'
+('01,21/ZX/00', 3)
+>>> read_circuit("02,12/XZ/00").text  # pairs 1 and 2 relabelled
+'01,21/ZX/00'
 """
 
 from __future__ import annotations
@@ -116,7 +116,7 @@ def _gate_text(g) -> str:
 def _format(c: GeneralCircuit) -> str:
     width = c.n_pairs - 1
     accepted = ",".join(format(a, f"0{width}b") for a in c.accepted)
-    return f"{c.n_pairs}:{','.join(_gate_text(g) for g in c.gates)}/{c.bases}/{accepted}"
+    return f"{','.join(_gate_text(g) for g in c.gates)}/{c.bases}/{accepted}"
 
 
 def _pairs_of(g) -> tuple[int, ...]:
@@ -214,17 +214,15 @@ def parse_circuit(text: str) -> tuple[GeneralCircuit, tuple[int, ...]]:
 
     def fail(why):
         raise CircuitSyntaxError(
-            f"cannot read circuit {text!r}: {why}; write it as n:gates/bases/accepted, "
-            "e.g. 3:01,21/ZX/00 (double selection)"
+            f"cannot read circuit {text!r}: {why}; write it as gates/bases/accepted, "
+            "e.g. 01,21/ZX/00 (double selection)"
         )
 
     parts = text.strip().split("/")
-    if len(parts) != 3 or ":" not in parts[0]:
-        fail("expected three parts separated by '/' and 'n:' in front")
-    head, gate_text = parts[0].split(":", 1)
-    if not head.isdigit():
-        fail(f"the number of pairs {head!r} is not an integer")
-    n = int(head)
+    if len(parts) != 3:
+        fail("expected three parts separated by '/'")
+    gate_text = parts[0]
+    n = len(parts[1]) + 1
     gates = []
     for item in gate_text.split(",") if gate_text else []:
         if len(item) != 2 or not item[0].isdigit():
@@ -249,3 +247,58 @@ def parse_circuit(text: str) -> tuple[GeneralCircuit, tuple[int, ...]]:
 def read_circuit(text: str) -> GeneralCircuit:
     """The canonical :class:`GeneralCircuit` of a compact form."""
     return parse_circuit(text)[0]
+
+
+def describe(circuit: GeneralCircuit, rotations=None) -> list[str]:
+    """Lines that show a general round as each node runs it (no I/O here).
+
+    Node A applies each rotation U, node B its conjugate U* (written ``U*``);
+    both apply the same CNOTs and measure the same bases.
+
+    Parameters
+    ----------
+    circuit : GeneralCircuit
+    rotations : sequence of int, optional
+        The round's rotation of each input (kept input first), shown first.
+
+    Examples
+    --------
+    >>> for line in describe(read_circuit("01,21/ZX/00")):
+    ...     print(line)
+    node A: CNOT 0>1, CNOT 2>1; measure 1 in Z, 2 in X
+    node B: CNOT 0>1, CNOT 2>1; measure 1 in Z, 2 in X
+    keep pair 0 when the parities of pairs 1,2 read 00 (0 agree, 1 differ)
+    """
+    placed = [("rot", i, r) for i, r in enumerate(rotations or ()) if r]
+    lines = []
+    for node, star in (("A", ""), ("B", "*")):
+        gates = [
+            f"CNOT {g[1]}>{g[2]}" if g[0] == "cnot" else f"{ROTATION_NAMES[g[2]]}{star} on {g[1]}"
+            for g in placed + list(circuit.gates)
+        ]
+        measures = ", ".join(f"{i + 1} in {b}" for i, b in enumerate(circuit.bases))
+        lines.append(f"node {node}: {', '.join(gates) or 'no gate'}; measure {measures}")
+    width = circuit.n_pairs - 1
+    patterns = " or ".join(format(a, f"0{width}b") for a in circuit.accepted)
+    pairs = ",".join(str(i) for i in range(1, circuit.n_pairs))
+    lines.append(
+        f"keep pair 0 when the parities of pairs {pairs} read {patterns} (0 agree, 1 differ)"
+    )
+    return lines
+
+
+def general_rounds(recipe):
+    """(path, round) of every general round of a recipe and its sources, in reading order.
+
+    ``path`` names the round: ``"3"`` is round 3 of the main chain, ``"3/2"``
+    round 2 of round 3's source.
+    """
+    from .kinds import BUILT_IN
+
+    out = []
+    for i, r in enumerate(recipe.rounds, start=1):
+        if r.source is not None:
+            out += [(f"{i}/{path}", sub) for path, sub in general_rounds(r.source)]
+        if r.selection not in BUILT_IN:
+            out.append((str(i), r))
+    return out

@@ -10,7 +10,7 @@ space all read :data:`STEP_KINDS`; nothing else dispatches on a kind's name.
 
 General check rounds over two to five pairs (:mod:`models.circuits`) are kinds
 too, registered on demand: their ``selection`` is their canonical compact form
-(``"4:01,02,03/ZZZ/000"``), so a recipe naming one carries everything needed to
+(``"01,02,03/ZZZ/000"``), so a recipe naming one carries everything needed to
 rebuild it, and :func:`step_kind` (and so :class:`models.recipes.Round`)
 registers it the first time it is named. Their tokens are ``c{form}``
 (sacrificed pairs fresh or from a source) and ``cs{form}`` (copies of the pair
@@ -118,14 +118,14 @@ def step_kind(selection: str) -> StepKind:
     --------
     >>> step_kind("double").n_inputs
     3
-    >>> step_kind("4:01,02,03/ZZX/000").n_inputs
+    >>> step_kind("01,02,03/ZZX/000").n_inputs
     4
     """
     try:
         return STEP_KINDS[selection]
     except (KeyError, TypeError):
         pass
-    if isinstance(selection, str) and ":" in selection:
+    if isinstance(selection, str) and "/" in selection:
         from .circuits import parse_circuit
 
         circuit, _ = parse_circuit(selection)
@@ -137,5 +137,5 @@ def step_kind(selection: str) -> StepKind:
         return register_circuit(circuit)
     raise ValueError(
         f"selection = {selection!r} is not a step kind; use one of {', '.join(SELECTIONS)} "
-        "or the compact form of a general round such as '4:01,02,03/ZZX/000'"
+        "or the compact form of a general round such as '01,02,03/ZZX/000'"
     )

@@ -18,7 +18,7 @@ Meaning. Rounds apply left to right to the kept pair, which starts as a raw pair
 - ``dp`` / ``ds``: double selection, two sacrificed pairs, raw (or from
   ``source``) / copies of the pair so far.
 - ``c{circuit}`` / ``cs{circuit}``: a general check round over 2 to 5 pairs in
-  the compact form of :mod:`models.circuits` (``c{4:01,02,03/ZZX/000}``), its
+  the compact form of :mod:`models.circuits` (``c{01,02,03/ZZX/000}``), its
   sacrificed pairs raw (or from ``source``) / copies of the pair so far;
   ``c{#id}`` names one already read or loaded by its id. The canonical string
   writes the canonical form of the circuit (its sacrificed pairs renamed, and
@@ -184,7 +184,7 @@ class _Parser:
             if selection is None:
                 self.fail(
                     "the id of a general round read or loaded before (or its compact form, "
-                    "such as c{4:01,02,03/ZZX/000})",
+                    "such as c{01,02,03/ZZX/000})",
                     start + len(head) + 1,
                 )
         else:

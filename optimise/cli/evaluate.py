@@ -139,8 +139,20 @@ def run(args) -> int:
             "success probability of every step, in the order they happen: "
             + ", ".join(f"{p:.6f}" for p in result.success_probabilities)
         )
+    _print_general_rounds(out, written)
     common.print_assumptions(out)
     return 0
+
+
+def _print_general_rounds(out, recipe) -> None:
+    """The circuit of each general check round, as each node runs it."""
+    from models.circuits import describe, general_rounds, read_circuit
+
+    for path, r in general_rounds(recipe):
+        circuit = read_circuit(r.selection)
+        out.print(f"round {path}: {circuit.n_pairs}->1 check round, id {circuit.circuit_id}")
+        for line in describe(circuit, r.rotations):
+            out.print("  " + line)
 
 
 def _round_dict(i: int, figures) -> dict:
