@@ -322,7 +322,6 @@ def _acceptance(circuit) -> np.ndarray:
 
 def _adjoint_circuit(g, circuit, rotations, *, two_qubit, single_qubit, measurement):
     """Operators ``g`` (..., 4**n, 4**n) taken back through the adjoint of the circuit."""
-    n = circuit.n_pairs
     # the adjoint of each map, last map first; Paulis and the CNOT are Hermitian,
     # so the depolarising and flip maps are their own adjoints
     for pair, basis in circuit.checks:

@@ -161,3 +161,18 @@ def test_unknown_id_and_unclosed_round_are_refused():
         parse_recipe("c{#0000000000}")
     with pytest.raises(RecipeSyntaxError, match="to close the general round"):
         parse_recipe("c{01,21/ZX/00")
+
+
+def test_density_engine_runs_general_rounds_of_four_pairs():
+    # the engine behind `stillroom verify` (no label algebra) against the qutip reference
+    from models import density
+
+    rng = np.random.default_rng(11)
+    circuit = _random_circuit(rng, 4)
+    pairs = [_random_pair(rng) for _ in range(4)]
+    rotations = [int(r) for r in rng.integers(6, size=4)]
+    effects = density.step_effects(circuit.step, rotations, **NOISE)
+    success, kept = density.run_on_pairs(effects, [density.pair_density(p) for p in pairs])
+    expected = _reference(circuit, pairs, rotations)
+    assert_allclose(success, expected.success, atol=1e-10)
+    assert_allclose(density.bell_weights(kept), expected.bell, atol=1e-10)
