@@ -108,3 +108,14 @@ def test_catalogue_is_cached_and_loaded(tmp_path):
     from models.kinds import STEP_KINDS
 
     assert all(STEP_KINDS[name].n_inputs == 3 for name in names)
+
+
+def test_evaluate_prints_each_general_round_per_node(capsys):
+    from optimise.cli import main
+
+    assert main(["evaluate", "c{10,02,13,21/ZXZ/000}Y.sY"]) == 0
+    out = capsys.readouterr().out
+    assert "4->1 check round, id " + read_circuit("10,02,13,21/ZXZ/000").circuit_id in out
+    assert "node A: Y on 0, Y on 1, Y on 2, Y on 3, CNOT 1>0, CNOT 0>2" in out
+    assert "node B: Y* on 0" in out
+    assert "read 000 (0 agree, 1 differ)" in out
