@@ -12,7 +12,8 @@ General check rounds over two to five pairs (:mod:`models.circuits`) are kinds
 too, registered on demand: their ``selection`` is their canonical compact form
 (``"01,02,03/ZZZ/000"``), so a recipe naming one carries everything needed to
 rebuild it, and :func:`step_kind` (and so :class:`models.recipes.Round`)
-registers it the first time it is named. Their tokens are ``c{form}``
+registers it the first time it is named; :data:`STEP_KINDS` finds it by name,
+but iterating it gives the built-in kinds only. Their tokens are ``c{form}``
 (sacrificed pairs fresh or from a source) and ``cs{form}`` (copies of the pair
 so far). :data:`BUILT_IN` lists the kinds present at import.
 
@@ -66,21 +67,63 @@ class StepKind:
         return self.circuit.n_pairs
 
 
+class _Registry(dict):
+    """The built-in kinds as its items; general rounds found by name as well.
+
+    Iterating (``items()``, ``values()``, ``len``) gives the kinds present at
+    import, which is what tables built over every kind (the round codes of
+    :mod:`models.chain`) expect; looking a name up (``[]``, ``in``, ``get``)
+    also finds a general round, registered on demand from its compact form.
+    """
+
+    def __init__(self, builtin):
+        super().__init__(builtin)
+        self.general: dict = {}
+
+    def __missing__(self, key):
+        if key in self.general:
+            return self.general[key]
+        try:
+            return step_kind(key)
+        except ValueError:
+            raise KeyError(key) from None
+
+    def __contains__(self, key):
+        return dict.__contains__(self, key) or key in self.general
+
+    def get(self, key, default=None):
+        try:
+            return self[key]
+        except KeyError:
+            return default
+
+
+class _InputCounts(dict):
+    """Inputs per kind: the built-in kinds as items, any general round on lookup."""
+
+    def __missing__(self, key):
+        return STEP_KINDS[key].n_inputs
+
+    def get(self, key, default=None):
+        try:
+            return self[key]
+        except KeyError:
+            return default
+
+
 # insertion order is the order of the codes of models.chain.LINEAR_ROUNDS
-STEP_KINDS: dict[str, StepKind] = {
-    kind.selection: kind
+STEP_KINDS: dict[str, StepKind] = _Registry(
+    (kind.selection, kind)
     for kind in (
         StepKind("single", TWO_TO_ONE, "p", "s", "2->1 parity check"),
         StepKind("double", DOUBLE_SELECTION, "dp", "ds", "double selection (3->1)"),
     )
-}
+)
 SELECTIONS: tuple[str, ...] = tuple(STEP_KINDS)
 # the kinds present at import; general rounds registered later are not among them
 BUILT_IN: tuple[str, ...] = SELECTIONS
 # inputs per step, kept pair included
-N_INPUTS: dict[str, int] = {name: kind.n_inputs for name, kind in STEP_KINDS.items()}
-
-
+N_INPUTS: dict[str, int] = _InputCounts((name, k.n_inputs) for name, k in STEP_KINDS.items())
 # general rounds by id, for the short form c{#id}
 BY_ID: dict[str, str] = {}
 
@@ -90,7 +133,7 @@ def register_circuit(circuit) -> StepKind:
 
     Registering the same circuit again returns the kind already registered.
     """
-    known = STEP_KINDS.get(circuit.text)
+    known = STEP_KINDS.general.get(circuit.text)
     if known is not None:
         return known
     kind = StepKind(
@@ -100,8 +143,7 @@ def register_circuit(circuit) -> StepKind:
         "cs{" + circuit.text + "}",
         f"{circuit.n_pairs}->1 check round {circuit.circuit_id}",
     )
-    STEP_KINDS[kind.selection] = kind
-    N_INPUTS[kind.selection] = kind.n_inputs
+    STEP_KINDS.general[kind.selection] = kind
     BY_ID[circuit.circuit_id] = kind.selection
     return kind
 
@@ -121,10 +163,8 @@ def step_kind(selection: str) -> StepKind:
     >>> step_kind("01,02,03/ZZX/000").n_inputs
     4
     """
-    try:
+    if isinstance(selection, str) and selection in STEP_KINDS:
         return STEP_KINDS[selection]
-    except (KeyError, TypeError):
-        pass
     if isinstance(selection, str) and "/" in selection:
         from .circuits import parse_circuit
 
