@@ -280,26 +280,7 @@ def measure_and_select(rho: qutip.Qobj, checks, eta: float, keep) -> tuple[float
         State of ``keep`` given success (normalised; the maximally mixed state if
         success is 0).
     """
-    n = _n_qubits(rho)
-    projectors = [(qa, qb, _measurement_projectors(basis)) for qa, qb, basis in checks]
-    accepted = None
-    for outcomes in itertools.product((0, 1), repeat=2 * len(checks)):
-        ops = {}
-        weight = 1.0
-        for i, (qa, qb, proj) in enumerate(projectors):
-            oa, ob = outcomes[2 * i], outcomes[2 * i + 1]
-            ops[qa], ops[qb] = proj[oa], proj[ob]
-            weight *= _agree_probability(oa, ob, eta)
-        if weight == 0.0:
-            continue
-        m = operator_on(ops, n)
-        branch = weight * (m * rho * m)
-        accepted = branch if accepted is None else accepted + branch
-    reduced = accepted.ptrace(list(keep))
-    success = float(np.real(reduced.tr()))
-    if success <= 0:
-        return 0.0, qutip.tensor([qutip.qeye(2) / 2 for _ in keep])
-    return success, reduced / success
+    return measure_and_accept(rho, checks, (0,), eta, keep)
 
 
 # ---------------------------------------------------------------- circuits
@@ -336,28 +317,17 @@ def run_circuit(
     checks : sequence of (pair, basis) measured at both nodes
     two_qubit, single_qubit, measurement : p, p1, eta (1 is perfect)
     """
-    n_pairs = len(pairs)
-    n = 2 * n_pairs
-    rho = qutip.tensor([pair_state(p) for p in pairs])
-    for i, perm in enumerate(rotations):
-        if perm is None or tuple(int(k) for k in perm) == IDENTITY_PERMUTATION:
-            continue
-        u = rotation_unitary(tuple(int(k) for k in perm))
-        rho = apply_unitary(rho, u, 2 * i)
-        rho = apply_unitary(rho, u.conj(), 2 * i + 1)
-        rho = depolarize(rho, [2 * i], single_qubit)
-        rho = depolarize(rho, [2 * i + 1], single_qubit)
-    for control, target in cnots:
-        for node in (0, 1):
-            c, t = 2 * control + node, 2 * target + node
-            gate = cnot_operator(n, c, t)
-            rho = gate * rho * gate.dag()
-            rho = depolarize(rho, [c, t], two_qubit)
-    success, kept = measure_and_select(
-        rho, [(2 * pair, 2 * pair + 1, basis) for pair, basis in checks], measurement, [0, 1]
+    operations = [("rot", i, perm) for i, perm in enumerate(rotations) if perm is not None]
+    operations += [("cnot", control, target) for control, target in cnots]
+    return run_general_circuit(
+        pairs,
+        operations,
+        checks,
+        (0,),
+        two_qubit=two_qubit,
+        single_qubit=single_qubit,
+        measurement=measurement,
     )
-    bell, off = bell_diagonal(kept)
-    return StepResult(success, kept, bell, off)
 
 
 def two_to_one(
