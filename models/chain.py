@@ -158,7 +158,9 @@ class ChainBatch:
         if len(shape) != 3 or shape[0] != n or shape[2] != 4 or shape[1] < 1:
             raise ValueError(f"weighted has shape {shape}; expected ({n}, K, 4)")
         if np.shape(self.deficit) != shape[:2]:
-            raise ValueError(f"deficit has shape {np.shape(self.deficit)}; expected {shape[:2]}")
+            raise ValueError(
+                f"deficit has shape {np.shape(self.deficit)}; expected {shape[:2]}"
+            )
 
     def __len__(self) -> int:
         return self.bell.shape[0]

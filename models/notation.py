@@ -139,7 +139,9 @@ class _Parser:
     def _fail_round_token(self, start: int, after_twirl: bool):
         """Fail at the first character that no round token can continue."""
         read = 0
-        while any(len(t) > read and self.text.startswith(t[: read + 1], start) for t, _ in _TOKENS):
+        while any(
+            len(t) > read and self.text.startswith(t[: read + 1], start) for t, _ in _TOKENS
+        ):
             read += 1
         if read == 0:
             if self.peek() == RAW_TWIRL:
@@ -158,7 +160,9 @@ class _Parser:
             for t, (sel, pump) in sorted(_TOKENS)
             if t.startswith(head) and len(t) > read
         )
-        self.fail(" or ".join(repr(c) for c in nexts) + f" after {head!r} ({names})", start + read)
+        self.fail(
+            " or ".join(repr(c) for c in nexts) + f" after {head!r} ({names})", start + read
+        )
 
     def _general_token(self):
         """A general round ``c{form}``, ``cs{form}``, ``c{#id}`` or ``cs{#id}`` at this position.
