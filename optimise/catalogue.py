@@ -154,9 +154,9 @@ def _gate_sources(n):
     return out
 
 
-def _final_weights(sequences, n, pair, s):
+def _final_weights(sequences, n, pair, s, kept_pair=None):
     """Joint weights after each CNOT sequence (all of one length), shape (B, 4**n)."""
-    start = pair
+    start = pair if kept_pair is None else kept_pair
     for _ in range(n - 1):
         start = np.multiply.outer(start, pair).ravel()
     dist = np.tile(start, (len(sequences), 1))
@@ -245,7 +245,9 @@ class Catalogue:
         }
 
 
-def build_catalogue(n: int, max_cnots: int, *, pair, two_qubit, measurement, chunk=4096):
+def build_catalogue(
+    n: int, max_cnots: int, *, pair, two_qubit, measurement, kept_pair=None, chunk=4096
+):
     """Enumerate, reduce and evaluate n-pair rounds; keep the (success, fidelity) front.
 
     Parameters
@@ -253,9 +255,12 @@ def build_catalogue(n: int, max_cnots: int, *, pair, two_qubit, measurement, chu
     n : int, 2 to 5
     max_cnots : int >= 1
     pair : array_like, shape (4,)
-        Bell weights (I, X, Y, Z) of every input.
+        Bell weights (I, X, Y, Z) of every sacrificed input.
     two_qubit, measurement : float, keyword-only
         Noise parameters (1 is perfect); single-qubit noise plays no part (no rotations).
+    kept_pair : array_like, shape (4,), optional
+        Bell weights of the kept input (default ``pair``): a pumping round's
+        kept pair is a purified one.
 
     Returns
     -------
@@ -263,6 +268,8 @@ def build_catalogue(n: int, max_cnots: int, *, pair, two_qubit, measurement, chu
     """
     started = time.perf_counter()
     pair = np.asarray(pair, dtype=float)
+    if kept_pair is not None:
+        kept_pair = np.asarray(kept_pair, dtype=float)
     circuits, before = enumerate_circuits(n, max_cnots)
     s = float(two_qubit) ** 2
     q = 2.0 * measurement * (1.0 - measurement)
@@ -278,7 +285,7 @@ def build_catalogue(n: int, max_cnots: int, *, pair, two_qubit, measurement, chu
         group = [sq for sq in sequences if len(sq) == length]
         for lo in range(0, len(group), chunk):
             part = group[lo : lo + chunk]
-            dist = _final_weights(part, n, pair, s)
+            dist = _final_weights(part, n, pair, s, kept_pair)
             for bases, readout in readouts.items():
                 rows = [i for i, sq in enumerate(part) if bases in by_sequence[sq]]
                 if not rows:
@@ -323,14 +330,16 @@ def _accepted_fronts(table, sequences, bases):
     return out
 
 
-def _cache_key(n, max_cnots, pair, two_qubit, measurement) -> str:
+def _cache_key(n, max_cnots, pair, two_qubit, measurement, kept_pair=None) -> str:
+    kept = None if kept_pair is None else [round(float(w), 12) for w in kept_pair]
     text = json.dumps(
         [FORMAT, n, max_cnots, [round(float(w), 12) for w in pair], two_qubit, measurement]
+        + ([kept] if kept is not None else [])
     )
     return hashlib.sha256(text.encode()).hexdigest()[:12]
 
 
-def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, directory=None):
+def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, kept_pair=None, directory=None):
     """The cached catalogue for these settings, built and cached on first use.
 
     Returns
@@ -340,7 +349,7 @@ def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, directory=None)
         True when it was read from the cache.
     """
     folder = catalogue_directory(directory)
-    key = _cache_key(n, max_cnots, pair, two_qubit, measurement)
+    key = _cache_key(n, max_cnots, pair, two_qubit, measurement, kept_pair)
     path = folder / f"rounds-n{n}-g{max_cnots}-{key}.json"
     if path.exists():
         data = json.loads(path.read_text())
@@ -348,7 +357,12 @@ def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, directory=None)
             fields = {k: data[k] for k in ("before", "after", "build_seconds", "entries")}
             return Catalogue(n, max_cnots, **fields), True
     catalogue = build_catalogue(
-        n, max_cnots, pair=pair, two_qubit=two_qubit, measurement=measurement
+        n,
+        max_cnots,
+        pair=pair,
+        two_qubit=two_qubit,
+        measurement=measurement,
+        kept_pair=kept_pair,
     )
     folder.mkdir(parents=True, exist_ok=True)
     partial = path.with_suffix(".partial")

@@ -19,7 +19,9 @@ evaluated again with :func:`models.evaluate.evaluate` and the largest relative
 difference in cost is printed.
 
 It also prints, per n, the catalogue's size before and after the symmetry
-reduction, its front and its build time (or "cached"), and per target the cost
+reduction, its front and its build time (or "cached"), the cost of a first
+2->1 round followed by one catalogued round made for its output (a catalogue
+whose kept input is that pair), and per target the cost
 n / P of the likeliest catalogued n->1 round that reaches F* in one round from
 raw pairs (columns "one n->1"): what a general round offers on its own, beside
 what two or three cheap 2->1 rounds cost.
@@ -176,6 +178,35 @@ def single_round_costs(catalogues, targets):
             ok = [e["success"] for e in catalogue.entries if e["fidelity"] >= t]
             out[n, t] = n / max(ok) if ok else np.inf
     return out
+
+
+def after_one_round(profile, directory) -> str:
+    """Cost of one 2->1 round, then one catalogued n->1 round pumping raw pairs into it.
+
+    The catalogue is built for that kept pair (``kept_pair``); cost
+    ``(cost(prefix) + n - 1) / P`` of the likeliest round reaching each target.
+    """
+    noise = profile.noise
+    rows = []
+    for prefix in ("pZ", "sY"):
+        first = evaluate(prefix, profile)
+        for n, gates in ((3, 3), (4, 4)):
+            catalogue, _ = load_or_build(
+                n,
+                gates,
+                pair=profile.raw,
+                kept_pair=first.bell,
+                two_qubit=noise.two_qubit,
+                measurement=noise.measurement,
+                directory=directory,
+            )
+            costs = []
+            for t in TARGETS[1:4]:
+                ok = [e["success"] for e in catalogue.entries if e["fidelity"] >= t]
+                costs.append(f"{(first.raw_pairs_per_output + n - 1) / max(ok):.3f}" if ok else "-")
+            rows.append(f"{prefix} then one {n}->1: " + " ".join(costs))
+    head = "after one round, F* = " + "/".join(str(t) for t in TARGETS[1:4]) + ": "
+    return head + "; ".join(rows)
 
 
 def main(argv=None) -> int:

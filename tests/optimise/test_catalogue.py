@@ -119,3 +119,17 @@ def test_evaluate_prints_each_general_round_per_node(capsys):
     assert "node A: Y on 0, Y on 1, Y on 2, Y on 3, CNOT 1>0, CNOT 0>2" in out
     assert "node B: Y* on 0" in out
     assert "read 000 (0 agree, 1 differ)" in out
+
+
+def test_a_purified_kept_input_gets_its_own_catalogue(tmp_path):
+    kept = np.array([0.95, 0.01, 0.01, 0.03])
+    catalogue = build_catalogue(3, 2, pair=PAIR, kept_pair=kept, **NOISE)
+    entry = catalogue.entries[-1]
+    success, out = run_step(
+        read_circuit(entry["form"]).step, [kept, PAIR, PAIR], [0] * 3, single_qubit=1.0, **NOISE
+    )
+    assert_allclose(success[0], entry["success"], rtol=1e-10)
+    assert_allclose(out[0, 0], entry["fidelity"], rtol=1e-10)
+    load_or_build(3, 2, pair=PAIR, directory=tmp_path, **NOISE)
+    load_or_build(3, 2, pair=PAIR, kept_pair=kept, directory=tmp_path, **NOISE)
+    assert len(list(tmp_path.glob("rounds-n3-g2-*.json"))) == 2
