@@ -277,6 +277,7 @@ def main(argv=None) -> int:
         print(
             f"largest relative difference of the search's costs from models.evaluate: {worst:.1e}"
         )
+        print(after_one_round(profile, args.catalogue_dir))
     print("\nsummary: saving at F* = 0.95 and 0.97")
     for name, t, c0, c1, saving in lines:
         if t in (0.95, 0.97):
