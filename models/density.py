@@ -1,6 +1,6 @@
 """A small full density-matrix engine for re-simulating recipes independently.
 
-Everything here acts on full density matrices of at most three pairs (six
+Everything here acts on full density matrices of at most five pairs (ten
 qubits) with explicit unitaries and Kraus operators; Bell weights are read off
 only where a caller asks for them (:func:`bell_weights`). Nothing uses the
 Bell-diagonal label algebra of :mod:`models.steps` or :mod:`models.noise`:
@@ -264,19 +264,21 @@ def step_effects(circuit, rotations, *, two_qubit, single_qubit, measurement) ->
     A step maps the joint state of its inputs linearly to the kept pair's
     unnormalised state given success, ``K(rho)_ab = Tr[G_ab rho]``. This
     evaluates ``G_ab = Phi^dagger(|b><a| ⊗ E)`` in the Heisenberg picture: the
-    agreement effect ``E`` of the checks (an ideal measurement of both qubits
-    of each sacrificed pair, outcomes compared) is taken back through the
-    adjoint of every Kraus map and gate of the circuit, in reverse order. Sixteen
-    operators pass through the circuit instead of a batch of states, and one
-    contraction per input then runs the step (:func:`run_circuit`).
+    acceptance effect ``E`` of the checks (an ideal measurement of both qubits
+    of each sacrificed pair; the pattern of agreeing and differing outcomes in
+    the circuit's accepted set) is taken back through the adjoint of every
+    Kraus map and gate of the circuit, in reverse order. Sixteen operators pass
+    through the circuit instead of a batch of states, and one contraction per
+    input then runs the step (:func:`run_circuit`). Rounds of five pairs
+    (10 qubits) take the sixteen operators one at a time, to bound memory.
 
     Parameters
     ----------
     circuit : models.steps.StepCircuit
-        Its ``cnots`` (bilateral, in order) and ``checks`` (sacrificed pair, basis);
-        pair 0 is kept.
+        Its ``operations`` (bilateral CNOTs and rotations, in order), ``checks``
+        (sacrificed pair, basis) and ``accepted`` patterns; pair 0 is kept.
     rotations : sequence of ``circuit.n_pairs`` ints
-        Rotation index of each pair (:data:`models.rotations.ROTATION_NAMES`).
+        Rotation index of each input (:data:`models.rotations.ROTATION_NAMES`).
     two_qubit, single_qubit, measurement : float
         Noise parameters (1 is perfect).
 
@@ -287,29 +289,54 @@ def step_effects(circuit, rotations, *, two_qubit, single_qubit, measurement) ->
     n = circuit.n_pairs
     if len(rotations) != n:
         raise ValueError(f"{circuit.name} takes {n} rotations, got {len(rotations)}")
-    by_pair = dict(circuit.checks)
-    effect = np.eye(1, dtype=complex)
-    for pair in range(1, n):
-        effect = np.kron(effect, _AGREE[by_pair[pair]])
+    effect = _acceptance(circuit)
     units = np.eye(4, dtype=complex)
     g = np.empty((4, 4, 4**n, 4**n), dtype=complex)
+    noise = {"two_qubit": two_qubit, "single_qubit": single_qubit, "measurement": measurement}
     for a in range(4):
         for b in range(4):
             g[a, b] = np.kron(np.outer(units[b], units[a]), effect)
+            if n >= 5:
+                g[a, b] = _adjoint_circuit(g[a, b], circuit, rotations, **noise)
+    return g if n >= 5 else _adjoint_circuit(g, circuit, rotations, **noise)
+
+
+def _acceptance(circuit) -> np.ndarray:
+    """The effect on pairs 1 .. n-1 of "the reported parity pattern is accepted"."""
+    n_checks = len(circuit.checks)
+    bit_of = {pair: i for i, (pair, _) in enumerate(circuit.checks)}
+    basis_of = dict(circuit.checks)
+    total = 0.0
+    for pattern in circuit.accepted:
+        effect = np.eye(1, dtype=complex)
+        for pair in range(1, circuit.n_pairs):
+            if pair not in bit_of:
+                effect = np.kron(effect, np.eye(4))
+                continue
+            agree = _AGREE[basis_of[pair]]
+            differ = (pattern >> (n_checks - 1 - bit_of[pair])) & 1
+            effect = np.kron(effect, np.eye(4) - agree if differ else agree)
+        total = total + effect
+    return total
+
+
+def _adjoint_circuit(g, circuit, rotations, *, two_qubit, single_qubit, measurement):
+    """Operators ``g`` (..., 4**n, 4**n) taken back through the adjoint of the circuit."""
     # the adjoint of each map, last map first; Paulis and the CNOT are Hermitian,
     # so the depolarising and flip maps are their own adjoints
-    for pair in range(1, n):
-        flips = [
-            np.sqrt(measurement) * PAULIS[0],
-            np.sqrt(1.0 - measurement) * _FLIP[by_pair[pair]],
-        ]
+    for pair, basis in circuit.checks:
+        flips = [np.sqrt(measurement) * PAULIS[0], np.sqrt(1.0 - measurement) * _FLIP[basis]]
         for qubit in (2 * pair, 2 * pair + 1):
             g = apply_kraus(g, flips, [qubit])
-    for control, target in reversed(circuit.cnots):
-        for node in (1, 0):
-            qubits = [2 * control + node, 2 * target + node]
-            g = conjugate(depolarize(g, qubits, two_qubit), _CNOT, qubits)
-    for pair, r in reversed(list(enumerate(rotations))):
+    placed = [("rot", pair, r) for pair, r in enumerate(rotations)]
+    for op in reversed(placed + list(circuit.operations)):
+        if op[0] == "cnot":
+            _, control, target = op
+            for node in (1, 0):
+                qubits = [2 * control + node, 2 * target + node]
+                g = conjugate(depolarize(g, qubits, two_qubit), _CNOT, qubits)
+            continue
+        _, pair, r = op
         if int(r) == IDENTITY_ROTATION:
             continue
         u = ROTATION_UNITARIES[int(r)]
@@ -367,7 +394,7 @@ def run_on_pairs(effects, pairs):
     success (...,), kept (..., 4, 4): as :func:`run_circuit` on their product state.
     """
     n = len(pairs)
-    kets, bras = "ikmo"[:n], "jlnp"[:n]
+    kets, bras = "ikmoq"[:n], "jlnpr"[:n]
     inputs = ",".join(f"...{j}{i}" for i, j in zip(kets, bras, strict=True))
     spec = f"ab{kets}{bras},{inputs}->...ab"
     g = effects.reshape((4, 4) + (4,) * (2 * n))

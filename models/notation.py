@@ -4,7 +4,7 @@ Grammar (our own notation)::
 
     recipe    := '~'? ('raw' | round ('.' round)*)
     round     := kind rotations? source? '~'? ('^' count)?
-    kind      := 'p' | 's' | 'dp' | 'ds'
+    kind      := 'p' | 's' | 'dp' | 'ds' | 'c{' circuit '}' | 'cs{' circuit '}'
     rotations := rot{1} | rot{n_inputs}
     rot       := 'Z' | 'z' | 'Y' | 'y' | 'X' | 'x'
     source    := '(' recipe ')'            only after p or dp
@@ -17,6 +17,12 @@ Meaning. Rounds apply left to right to the kept pair, which starts as a raw pair
   by all previous rounds, made independently (symmetric recurrence).
 - ``dp`` / ``ds``: double selection, two sacrificed pairs, raw (or from
   ``source``) / copies of the pair so far.
+- ``c{circuit}`` / ``cs{circuit}``: a general check round over 2 to 5 pairs in
+  the compact form of :mod:`models.circuits` (``c{01,02,03/ZZX/000}``), its
+  sacrificed pairs raw (or from ``source``) / copies of the pair so far;
+  ``c{#id}`` names one already read or loaded by its id. The canonical string
+  writes the canonical form of the circuit (its sacrificed pairs renamed, and
+  the rotation letters with them).
 - Rotations (:data:`models.rotations.ROTATION_NAMES`): one letter is the same
   rotation on every input; otherwise one letter per input, kept input first
   (2 for p and s, 3 for dp and ds). Omitted: ``Z``, which is no gate.
@@ -57,8 +63,9 @@ References
 from __future__ import annotations
 
 from .canonical_form import canonical
+from .circuits import CircuitSyntaxError, parse_circuit
 from .formatting import RAW_TWIRL, format_recipe
-from .kinds import STEP_KINDS
+from .kinds import BY_ID, STEP_KINDS, register_circuit
 from .recipes import Recipe, Round
 from .rotations import ROTATION_NAMES
 
@@ -186,13 +193,53 @@ class _Parser:
             " or ".join(repr(c) for c in nexts) + f" after {head!r} ({names})", start + read
         )
 
-    def round(self, closing: str, after_twirl: bool = False) -> list[Round]:
+    def _general_token(self):
+        """A general round ``c{form}``, ``cs{form}``, ``c{#id}`` or ``cs{#id}`` at this position.
+
+        Returns None when there is none, else (token as written, selection,
+        pumping, relabelling of the inputs or None); registers the round.
+        """
         start = self.pos
-        for token, (selection, pumping) in _TOKENS:
-            if self.text.startswith(token, start):
+        for head, pumping in (("cs{", False), ("c{", True)):
+            if self.text.startswith(head, start):
                 break
         else:
-            self._fail_round_token(start, after_twirl)
+            return None
+        end = self.text.find("}", start)
+        if end < 0:
+            self.fail(
+                f"'}}' to close the general round opened at column {start + 1}", len(self.text)
+            )
+        body = self.text[start + len(head) : end]
+        relabel = None
+        if body.startswith("#"):
+            selection = BY_ID.get(body[1:])
+            if selection is None:
+                self.fail(
+                    "the id of a general round read or loaded before (or its compact form, "
+                    "such as c{01,02,03/ZZX/000})",
+                    start + len(head) + 1,
+                )
+        else:
+            try:
+                circuit, relabel = parse_circuit(body)
+            except CircuitSyntaxError as error:
+                self.fail(str(error), start + len(head))
+            selection = register_circuit(circuit).selection
+        return self.text[start : end + 1], selection, pumping, relabel
+
+    def round(self, closing: str, after_twirl: bool = False) -> list[Round]:
+        start = self.pos
+        general = self._general_token()
+        if general is not None:
+            token, selection, pumping, relabel = general
+        else:
+            relabel = None
+            for token, (selection, pumping) in _TOKENS:
+                if self.text.startswith(token, start):
+                    break
+            else:
+                self._fail_round_token(start, after_twirl)
         kind = token
         self.pos += len(token)
         n_inputs = STEP_KINDS[selection].n_inputs
@@ -209,6 +256,9 @@ class _Parser:
                 f"or {n_inputs} (one per input), found {len(letters)} at column {letters_at + 1}"
             )
         rotations = tuple(letters) if letters else (0,)
+        if relabel is not None and len(rotations) > 1:
+            # the canonical circuit renamed the sacrificed pairs: their rotations follow
+            rotations = tuple(rotations[i] for i in relabel)
         source = None
         if self.peek() == "(":
             if not pumping:

@@ -37,7 +37,7 @@ from numbers import Integral
 
 from .canonical_form import canonical
 from .formatting import format_recipe
-from .kinds import N_INPUTS, SELECTIONS
+from .kinds import N_INPUTS, SELECTIONS, step_kind
 from .making import making_order, memory_needed
 from .rotations import ROTATION_NAMES
 
@@ -123,10 +123,7 @@ class Round:
 
     def __post_init__(self):
         if self.selection not in SELECTIONS:
-            raise ValueError(
-                f"selection = {self.selection!r} is not one of {', '.join(map(repr, SELECTIONS))} "
-                "(2->1 step or double selection)"
-            )
+            step_kind(self.selection)  # a general round registers here; ValueError if unknown
         if self.sacrificed not in SACRIFICED:
             raise ValueError(
                 f"sacrificed = {self.sacrificed!r} is not one of "

@@ -25,13 +25,13 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import cached_property
+from functools import cached_property, lru_cache
 from itertools import product
 
 import numpy as np
 
 from .noise import check_error, depolarize
-from .rotations import IDENTITY, SOURCES, rotate
+from .rotations import IDENTITY, PERMUTATIONS, SOURCES, rotate
 from .states import X_BIT, Z_BIT, label_from_bits
 
 
@@ -45,16 +45,30 @@ class StepCircuit:
     n_pairs : int
         Pair 0 is the one kept; the others are measured and sacrificed.
     cnots : tuple of (control, target)
-        Bilateral CNOTs (one at each node) in the order applied.
+        Bilateral CNOTs (one at each node) in the order applied; any pair may
+        be control or target.
     checks : tuple of (pair, basis)
-        Bilateral measurements whose parities must agree; basis ``"Z"`` reads the
-        pair's x bit, ``"X"`` reads its z bit.
+        Bilateral measurements of sacrificed pairs; basis ``"Z"`` reads the
+        pair's x bit, ``"X"`` reads its z bit. Each check reports one parity
+        bit: 1 when the two nodes' outcomes differ.
+    rotations : tuple of (position, pair, rotation), default ()
+        Bilateral rotations placed inside the circuit: rotation ``rotation``
+        (an index into :data:`models.rotations.ROTATION_NAMES`) on ``pair``
+        after the first ``position`` CNOTs, in the order listed. Each
+        non-identity one adds single-qubit noise at both nodes. (The rotations
+        a round applies to its inputs are passed to :func:`run_step` instead.)
+    accepted : tuple of int, default (0,)
+        Reported parity patterns on which the kept pair is kept; a pattern
+        holds one bit per check, the first check most significant. ``(0,)``
+        is "every check agrees".
     """
 
     name: str
     n_pairs: int
     cnots: tuple[tuple[int, int], ...]
     checks: tuple[tuple[int, str], ...]
+    rotations: tuple[tuple[int, int, int], ...] = ()
+    accepted: tuple[int, ...] = (0,)
 
     def __post_init__(self):
         for control, target in self.cnots:
@@ -69,17 +83,56 @@ class StepCircuit:
                 raise ValueError(
                     f"check ({pair}, {basis!r}) must measure a sacrificed pair in X or Z"
                 )
+        if len({pair for pair, _ in self.checks}) != len(self.checks):
+            raise ValueError(f"checks = {self.checks!r} measure a pair twice")
+        for position, pair, rotation in self.rotations:
+            if not (0 <= position <= len(self.cnots) and 0 <= pair < self.n_pairs):
+                raise ValueError(
+                    f"rotation ({position}, {pair}, {rotation}) must sit after 0 to "
+                    f"{len(self.cnots)} CNOTs on one of the {self.n_pairs} pairs"
+                )
+            if not 0 <= rotation < 6:
+                raise ValueError(f"rotation index {rotation!r} is not in [0, 5]")
+        n_patterns = 2 ** len(self.checks)
+        accepted = tuple(sorted(set(self.accepted)))
+        if not accepted or not all(0 <= a < n_patterns for a in accepted):
+            raise ValueError(
+                f"accepted = {self.accepted!r} must list one or more parity patterns "
+                f"in [0, {n_patterns - 1}]"
+            )
+        object.__setattr__(self, "accepted", accepted)
+
+    @cached_property
+    def operations(self) -> tuple[tuple, ...]:
+        """Gates in the order applied: ``("cnot", control, target)`` or ``("rot", pair, r)``."""
+        placed = sorted(
+            (position, i, pair, r) for i, (position, pair, r) in enumerate(self.rotations)
+        )
+        out = []
+        for k in range(len(self.cnots) + 1):
+            out += [("rot", pair, r) for position, _, pair, r in placed if position == k and r]
+            if k < len(self.cnots):
+                out.append(("cnot",) + tuple(self.cnots[k]))
+        return tuple(out)
+
+    @cached_property
+    def term_powers(self) -> tuple[tuple[int, int], ...]:
+        """Per term of :attr:`terms`: (failed CNOTs k, failed in-circuit rotations j)."""
+        return _compile(self)[0]
 
     @cached_property
     def terms(self) -> np.ndarray:
-        """Compiled map, shape ``(n_cnots + 1, 4**n_pairs, 4 * 2**n_checks)``.
+        """Compiled map, shape ``(n_terms, 4**n_pairs, 4 * 2**n_checks)``.
 
-        ``terms[k]`` takes the joint input weights to the joint weights of (kept
-        label, reported-parity pattern) for the part of the evolution in which
-        exactly ``k`` CNOTs failed; its coefficient is ``s**(n - k) * (1 - s)**k``
-        with ``s = two_qubit**2`` (both nodes' gates perfect).
+        ``terms[t]`` takes the joint input weights to the joint weights of (kept
+        label, true parity pattern) for the part of the evolution in which
+        exactly ``k`` CNOTs and ``j`` in-circuit rotations failed
+        (``term_powers[t] == (k, j)``); its coefficient is
+        ``s**(n_cnots - k) * (1 - s)**k * u**(n_rot - j) * (1 - u)**j`` with
+        ``s = two_qubit**2`` and ``u = single_qubit**2`` (both nodes' gates
+        perfect). Without in-circuit rotations term ``t`` has ``k = t``.
         """
-        return _compile(self)
+        return _compile(self)[1]
 
     @cached_property
     def plan(self):
@@ -99,49 +152,63 @@ def _joint_index(x, z):
     return (labels * 4 ** np.arange(n - 1, -1, -1)).sum(axis=1)
 
 
-def _cnot_matrix(n, control, target):
+def _relabelled(n, operation):
+    """Joint label each joint label becomes under an ideal gate, shape (4**n,)."""
     x, z = _joint_bits(n)
     x, z = x.copy(), z.copy()
-    x[:, target] ^= x[:, control]
-    z[:, control] ^= z[:, target]
-    new = _joint_index(x, z)
-    m = np.zeros((4**n, 4**n))
-    m[new, np.arange(4**n)] = 1.0
-    return m
+    if operation[0] == "cnot":
+        _, control, target = operation
+        x[:, target] ^= x[:, control]
+        z[:, control] ^= z[:, target]
+        return _joint_index(x, z)
+    _, pair, r = operation
+    labels = label_from_bits(x[:, pair], z[:, pair])
+    x[:, pair], z[:, pair] = X_BIT[PERMUTATIONS[r, labels]], Z_BIT[PERMUTATIONS[r, labels]]
+    return _joint_index(x, z)
 
 
-def _depolarize_matrix(n, pairs):
-    """Replace the joint marginal of ``pairs`` by uniform: both nodes' gate failed."""
-    x, z = _joint_bits(n)
-    others = [i for i in range(n) if i not in pairs]
-    key = _joint_index(x[:, others], z[:, others]) if others else np.zeros(4**n, dtype=np.intp)
-    same = key[:, None] == key[None, :]
-    return same / 4.0 ** len(pairs)
+def _forget(rows, n, pairs):
+    """Heisenberg form of gate failure: average rows over the labels of ``pairs``.
+
+    A failed gate replaces the joint marginal of its pairs by uniform; acting on
+    a readout matrix (one row per joint label) that is this average.
+    """
+    shaped = rows.reshape((4,) * n + rows.shape[1:])
+    mean = shaped.mean(axis=tuple(pairs), keepdims=True)
+    return np.broadcast_to(mean, shaped.shape).reshape(rows.shape)
 
 
-def _compile(circuit: StepCircuit) -> np.ndarray:
-    n = circuit.n_pairs
+@lru_cache(maxsize=64)
+def _compile_cached(n, operations, checks):
     size = 4**n
-    # polynomial in s: polys[k] is the map with k failed gates
-    polys = [np.eye(size)]
-    for control, target in circuit.cnots:
-        cnot = _cnot_matrix(n, control, target)
-        failed = _depolarize_matrix(n, (control, target)) @ cnot
-        new = [np.zeros((size, size)) for _ in range(len(polys) + 1)]
-        for k, m in enumerate(polys):
-            new[k] += cnot @ m
-            new[k + 1] += failed @ m
-        polys = new
     x, z = _joint_bits(n)
-    bits = [x[:, pair] if basis == "Z" else z[:, pair] for pair, basis in circuit.checks]
     pattern = np.zeros(size, dtype=np.intp)
-    for b in bits:
-        pattern = 2 * pattern + b
+    for pair, basis in checks:
+        pattern = 2 * pattern + (x[:, pair] if basis == "Z" else z[:, pair])
     kept = label_from_bits(x[:, 0], z[:, 0])
-    n_patterns = 2 ** len(circuit.checks)
+    n_patterns = 2 ** len(checks)
     readout = np.zeros((size, 4 * n_patterns))
     readout[np.arange(size), kept * n_patterns + pattern] = 1.0
-    return np.stack([m.T @ readout for m in polys])
+    # Heisenberg picture, last gate first: each gate maps a readout R to C^T R
+    # (a gather) when it works and C^T D R when it fails; a polynomial in the
+    # failures, keyed by (failed CNOTs, failed rotations)
+    polys = {(0, 0): readout}
+    for operation in reversed(operations):
+        new_label = _relabelled(n, operation)
+        pairs = operation[1:] if operation[0] == "cnot" else operation[1:2]
+        failed_key = (1, 0) if operation[0] == "cnot" else (0, 1)
+        new = {}
+        for (k, j), rows in polys.items():
+            for key, r in (((k, j), rows), ((k + failed_key[0], j + failed_key[1]), None)):
+                value = rows[new_label] if r is not None else _forget(rows, n, pairs)[new_label]
+                new[key] = new[key] + value if key in new else value
+        polys = new
+    keys = tuple(sorted(polys))
+    return keys, np.stack([polys[key] for key in keys])
+
+
+def _compile(circuit: StepCircuit):
+    return _compile_cached(circuit.n_pairs, circuit.operations, tuple(circuit.checks))
 
 
 def _joint_weights(columns, n):
@@ -311,20 +378,30 @@ def _power(x, k: int):
     return result
 
 
-def _term_weights(circuit: StepCircuit, s, q):
-    """``weights[k][m]``: probability that exactly k CNOTs failed (both nodes' gates
-    perfect with probability ``s``) and the reported parities differ from the
-    true ones by pattern m (each check wrong with probability ``q``)."""
-    n_failed = len(circuit.cnots)
+def _term_weights(circuit: StepCircuit, s, q, u=1.0):
+    """``weights[t][m]``: probability of term t's gate failures (:attr:`StepCircuit.term_powers`;
+    both nodes' CNOTs perfect with probability ``s``, both nodes' rotations with
+    ``u``) times the probability that the reported parities fall in the accepted
+    set when the true pattern is m (each check wrong with probability ``q``)."""
+    n_cnots = len(circuit.cnots)
+    n_rotations = sum(op[0] == "rot" for op in circuit.operations)
     n_checks = len(circuit.checks)
     # integer powers by repeated products: np.power on arrays is far slower
-    check_weights = [
-        _power(q, bin(m).count("1")) * _power(1.0 - q, n_checks - bin(m).count("1"))
-        for m in range(2**n_checks)
+    flips = [
+        _power(q, bin(f).count("1")) * _power(1.0 - q, n_checks - bin(f).count("1"))
+        for f in range(2**n_checks)
     ]
+    check_weights = [sum(flips[m ^ a] for a in circuit.accepted) for m in range(2**n_checks)]
     return [
-        [_power(s, n_failed - k) * _power(1.0 - s, k) * w for w in check_weights]
-        for k in range(n_failed + 1)
+        [
+            _power(s, n_cnots - k)
+            * _power(1.0 - s, k)
+            * _power(u, n_rotations - j)
+            * _power(1.0 - u, j)
+            * w
+            for w in check_weights
+        ]
+        for k, j in circuit.term_powers
     ]
 
 
@@ -380,7 +457,9 @@ def run_joint(circuit: StepCircuit, joint, rotations, *, two_qubit, single_qubit
         marginal = j.sum(axis=axis, keepdims=True)
         j = s2 * j + (1.0 - s2) * 0.25 * marginal
     flat = j.reshape(n, 4**n_pairs)
-    term_weights = _term_weights(circuit, two_qubit**2, float(check_error(measurement)))
+    term_weights = _term_weights(
+        circuit, two_qubit**2, float(check_error(measurement)), single_qubit**2
+    )
     unnormalised = [0.0] * 4
     for term, weights in zip(circuit.terms, term_weights, strict=True):
         grouped = (flat @ term).reshape(n, 4, -1)
@@ -398,7 +477,7 @@ def _evaluate_chunk(circuit, inputs, rotations, *, s, q, p1, success, kept):
     n = success.shape[0]
     columns = [_prepare_columns(p, r, p1, n) for p, r in zip(inputs, rotations, strict=True)]
     plan = circuit.plan
-    term_weights = _term_weights(circuit, s, q)
+    term_weights = _term_weights(circuit, s, q, p1 * p1)
     joint = None
     unnormalised = [0.0] * 4
     for (kind, data), weights in zip(plan, term_weights, strict=True):

@@ -120,6 +120,7 @@ def run(args) -> int:
         f"raw pair, {result.memory_per_node} memory qubits per node, "
         f"{fmt_time(result.time_per_output_s)} per output pair"
     )
+    _print_general_rounds(out, recipe)
     common.print_assumptions(out)
     return 0
 
@@ -195,6 +196,17 @@ def _step_dict(story) -> dict:
         "gate_noise": float(story.gate_noise),
         "memory_noise": float(story.memory_noise),
     }
+
+
+def _print_general_rounds(out, recipe) -> None:
+    """The circuit of each general check round, as each node runs it."""
+    from models.circuits import describe, general_rounds, read_circuit
+
+    for path, r in general_rounds(recipe):
+        circuit = read_circuit(r.selection)
+        out.print(f"round {path}: {circuit.n_pairs}->1 check round, id {circuit.circuit_id}")
+        for line in describe(circuit, r.rotations):
+            out.print("  " + line)
 
 
 def _round_dict(i: int, figures) -> dict:

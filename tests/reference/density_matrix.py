@@ -280,26 +280,7 @@ def measure_and_select(rho: qutip.Qobj, checks, eta: float, keep) -> tuple[float
         State of ``keep`` given success (normalised; the maximally mixed state if
         success is 0).
     """
-    n = _n_qubits(rho)
-    projectors = [(qa, qb, _measurement_projectors(basis)) for qa, qb, basis in checks]
-    accepted = None
-    for outcomes in itertools.product((0, 1), repeat=2 * len(checks)):
-        ops = {}
-        weight = 1.0
-        for i, (qa, qb, proj) in enumerate(projectors):
-            oa, ob = outcomes[2 * i], outcomes[2 * i + 1]
-            ops[qa], ops[qb] = proj[oa], proj[ob]
-            weight *= _agree_probability(oa, ob, eta)
-        if weight == 0.0:
-            continue
-        m = operator_on(ops, n)
-        branch = weight * (m * rho * m)
-        accepted = branch if accepted is None else accepted + branch
-    reduced = accepted.ptrace(list(keep))
-    success = float(np.real(reduced.tr()))
-    if success <= 0:
-        return 0.0, qutip.tensor([qutip.qeye(2) / 2 for _ in keep])
-    return success, reduced / success
+    return measure_and_accept(rho, checks, (0,), eta, keep)
 
 
 # ---------------------------------------------------------------- circuits
@@ -336,28 +317,17 @@ def run_circuit(
     checks : sequence of (pair, basis) measured at both nodes
     two_qubit, single_qubit, measurement : p, p1, eta (1 is perfect)
     """
-    n_pairs = len(pairs)
-    n = 2 * n_pairs
-    rho = qutip.tensor([pair_state(p) for p in pairs])
-    for i, perm in enumerate(rotations):
-        if perm is None or tuple(int(k) for k in perm) == IDENTITY_PERMUTATION:
-            continue
-        u = rotation_unitary(tuple(int(k) for k in perm))
-        rho = apply_unitary(rho, u, 2 * i)
-        rho = apply_unitary(rho, u.conj(), 2 * i + 1)
-        rho = depolarize(rho, [2 * i], single_qubit)
-        rho = depolarize(rho, [2 * i + 1], single_qubit)
-    for control, target in cnots:
-        for node in (0, 1):
-            c, t = 2 * control + node, 2 * target + node
-            gate = cnot_operator(n, c, t)
-            rho = gate * rho * gate.dag()
-            rho = depolarize(rho, [c, t], two_qubit)
-    success, kept = measure_and_select(
-        rho, [(2 * pair, 2 * pair + 1, basis) for pair, basis in checks], measurement, [0, 1]
+    operations = [("rot", i, perm) for i, perm in enumerate(rotations) if perm is not None]
+    operations += [("cnot", control, target) for control, target in cnots]
+    return run_general_circuit(
+        pairs,
+        operations,
+        checks,
+        (0,),
+        two_qubit=two_qubit,
+        single_qubit=single_qubit,
+        measurement=measurement,
     )
-    bell, off = bell_diagonal(kept)
-    return StepResult(success, kept, bell, off)
 
 
 def two_to_one(
@@ -408,6 +378,100 @@ def double_selection(
         single_qubit=single_qubit,
         measurement=measurement,
     )
+
+
+def _reported_bit_probability(outcome_a: int, outcome_b: int, bit: int, eta: float) -> float:
+    """Probability that the two reported outcomes differ (bit 1) or agree (bit 0)."""
+    agree = _agree_probability(outcome_a, outcome_b, eta)
+    return agree if bit == 0 else 1.0 - agree
+
+
+def measure_and_accept(rho: qutip.Qobj, checks, accepted, eta: float, keep):
+    """Measure ``checks`` and keep the runs whose reported parity pattern is in ``accepted``.
+
+    A pattern holds one bit per check, the first check most significant; a bit
+    is 1 when that check's two reported outcomes differ. Returns (success,
+    normalised state of ``keep``) as :func:`measure_and_select`.
+    """
+    n = _n_qubits(rho)
+    n_checks = len(checks)
+    projectors = [(qa, qb, _measurement_projectors(basis)) for qa, qb, basis in checks]
+    total = None
+    for outcomes in itertools.product((0, 1), repeat=2 * n_checks):
+        ops = {}
+        for i, (qa, qb, proj) in enumerate(projectors):
+            ops[qa], ops[qb] = proj[outcomes[2 * i]], proj[outcomes[2 * i + 1]]
+        weight = 0.0
+        for pattern in accepted:
+            bits = [(pattern >> (n_checks - 1 - i)) & 1 for i in range(n_checks)]
+            w = 1.0
+            for i, bit in enumerate(bits):
+                w *= _reported_bit_probability(outcomes[2 * i], outcomes[2 * i + 1], bit, eta)
+            weight += w
+        if weight == 0.0:
+            continue
+        m = operator_on(ops, n)
+        branch = weight * (m * rho * m)
+        total = branch if total is None else total + branch
+    reduced = total.ptrace(list(keep))
+    success = float(np.real(reduced.tr()))
+    if success <= 0:
+        return 0.0, qutip.tensor([qutip.qeye(2) / 2 for _ in keep])
+    return success, reduced / success
+
+
+def _bilateral_rotation(rho, perm, pair, single_qubit):
+    u = rotation_unitary(tuple(int(k) for k in perm))
+    rho = apply_unitary(rho, u, 2 * pair)
+    rho = apply_unitary(rho, u.conj(), 2 * pair + 1)
+    rho = depolarize(rho, [2 * pair], single_qubit)
+    return depolarize(rho, [2 * pair + 1], single_qubit)
+
+
+def run_general_circuit(
+    pairs,
+    operations,
+    checks,
+    accepted,
+    *,
+    two_qubit: float,
+    single_qubit: float,
+    measurement: float,
+) -> StepResult:
+    """Any check round on the full density matrix of ``len(pairs)`` pairs (pair 0 kept).
+
+    Parameters
+    ----------
+    pairs : sequence of Bell weights (4,) or 2-qubit Qobj
+    operations : sequence of ``("cnot", control pair, target pair)`` (bilateral) or
+        ``("rot", pair, permutation)`` (a bilateral rotation given by the label
+        permutation it should realise; the identity is no gate), in the order applied
+    checks : sequence of (pair, basis), every sacrificed pair measured at both nodes
+    accepted : sequence of int, reported parity patterns kept (first check most significant)
+    two_qubit, single_qubit, measurement : p, p1, eta (1 is perfect)
+    """
+    n = 2 * len(pairs)
+    rho = qutip.tensor([pair_state(p) for p in pairs])
+    for op in operations:
+        if op[0] == "rot":
+            if tuple(int(k) for k in op[2]) != IDENTITY_PERMUTATION:
+                rho = _bilateral_rotation(rho, op[2], op[1], single_qubit)
+            continue
+        _, control, target = op
+        for node in (0, 1):
+            c, t = 2 * control + node, 2 * target + node
+            gate = cnot_operator(n, c, t)
+            rho = gate * rho * gate.dag()
+            rho = depolarize(rho, [c, t], two_qubit)
+    success, kept = measure_and_accept(
+        rho,
+        [(2 * pair, 2 * pair + 1, basis) for pair, basis in checks],
+        accepted,
+        measurement,
+        [0, 1],
+    )
+    bell, off = bell_diagonal(kept)
+    return StepResult(success, kept, bell, off)
 
 
 # ---------------------------------------------------------------- memory
