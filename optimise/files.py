@@ -33,3 +33,28 @@ def write_atomic(path, data: str | bytes) -> Path:
 def write_json_atomic(path, obj) -> Path:
     """Write ``obj`` as indented JSON (keys in insertion order) atomically."""
     return write_atomic(path, json.dumps(obj, indent=2, allow_nan=False) + "\n")
+
+
+def folder_problem(path) -> str | None:
+    """Why ``path`` cannot be (made into) a folder we write in, or None if it can.
+
+    Checked before long work, so that a bad output folder is refused at once and
+    nothing is computed in vain: a file in the way, or a nearest existing folder
+    that this process may not write in.
+
+    Examples
+    --------
+    >>> folder_problem(__file__)
+    'exists and is not a folder'
+    """
+    path = Path(path)
+    probe = path
+    while not probe.exists():
+        if probe.parent == probe:
+            break
+        probe = probe.parent
+    if not probe.is_dir():
+        return "exists and is not a folder" if probe == path else f"{probe} is not a folder"
+    if not os.access(probe, os.W_OK | os.X_OK):
+        return f"{probe} is not writable"
+    return None

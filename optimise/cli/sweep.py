@@ -82,6 +82,8 @@ def add_parser(sub, parents) -> None:
 def run(args) -> int:
     profile, label = common.profile_or_demo(args.profile)
     from .. import sweep as sweeping
+    from ..errors import InputError
+    from ..files import folder_problem
     from .evaluate import resolve_recipe
 
     followed = [(text, resolve_recipe(text)) for text in args.recipe]
@@ -92,6 +94,9 @@ def run(args) -> int:
         if args.out
         else (Path(args.runs_dir) / f"sweep-{common.slug(profile.name)}-{args.parameter}")
     )
+    problem = folder_problem(out_dir)
+    if problem:
+        raise InputError(f"sweep output folder {out_dir}: {problem}")
     progress = common.console(stderr=True)
     try:
         document = sweeping.run_sweep(

@@ -236,6 +236,18 @@ def test_file_system_faults_are_one_line_and_write_nothing(workdir, capsys):
         assert files_in(workdir) == before, (case, err)
 
 
+def test_a_sweep_output_folder_that_is_a_file_is_refused_before_the_sweep(workdir, capsys):
+    # refused at once: the sweep's evaluation is never reached (common practice, no source)
+    (workdir / "afile").write_text("x")
+    for out_dir in ("afile", "afile/deeper"):
+        before = files_in(workdir)
+        case = ["sweep", "two_qubit", "0.95", "1", "--out", out_dir, "--no-progress"]
+        code = main(case)
+        out, err = capsys.readouterr()
+        check_one_line(code, out, err, case)
+        assert "afile" in err and files_in(workdir) == before
+
+
 def test_a_run_folder_that_is_a_file(workdir, capsys):
     (workdir / "runs").mkdir()
     (workdir / "runs" / "demo-metro").write_text("not a folder")
