@@ -10,14 +10,17 @@ after each CNOT at each node, measurement flips) on n copies of a given input
 pair (by default the profile's raw pair, used as it arrives, without rotation),
 and the catalogue keeps the rounds on the front of (success, fidelity).
 
-Reductions, each leaving the compiled map of the round unchanged:
+Reductions (what each one keeps unchanged is said beside it):
 
 - gates on disjoint pairs commute, noise included (each gate's noise acts on
   its own two pairs), so only one order of such neighbours is kept (the
   canonical order of :func:`models.circuits.normal_order`);
 - relabelling the sacrificed pairs (with their bases and parity bits) gives the
-  same round on inputs made alike, as every round of a recipe has: one
-  circuit per class is kept;
+  same figures on n identical inputs that do not wait, which is what the
+  catalogue scores: one circuit per class is kept. This is a reduction of the
+  catalogue only: in a recipe with memory decay the inputs are made one after
+  another and wait differently, so two relabellings are two rounds (their
+  figures differ slightly) and the one kept is not proven the better;
 - circuits whose compiled maps are identical (every term of
   :attr:`models.steps.StepCircuit.terms` equal) are merged among the rounds kept.
 
@@ -51,7 +54,17 @@ from models.circuits import canonical_circuit, read_circuit
 from models.kinds import register_circuit
 from models.states import X_BIT, Z_BIT, label_from_bits
 
-__all__ = ["Catalogue", "build_catalogue", "catalogue_directory", "load_or_build", "pareto_front"]
+from .files import write_json_atomic
+from .pareto import pareto_mask, quantise
+
+__all__ = [
+    "Catalogue",
+    "build_catalogue",
+    "catalogue_directory",
+    "load_or_build",
+    "pareto_front",
+    "relabelling_class",
+]
 
 FORMAT = 1
 
@@ -90,6 +103,25 @@ def _canonical_sequence(seq, perms):
         elif form == best:
             stabiliser.append(perm)
     return best, stabiliser
+
+
+def relabelling_class(n: int, seq, bases: str) -> tuple:
+    """The catalogue's representative of a CNOT sequence and bases: ``(sequence, bases)``.
+
+    The least normal form over every relabelling of the sacrificed pairs, then
+    the least bases among the relabellings that reach it: the member
+    :func:`enumerate_circuits` keeps of the class.
+    """
+    best = None
+    for rest in permutations(range(1, n)):
+        perm = (0,) + rest
+        key = (
+            _normal(tuple((perm[c], perm[t]) for c, t in seq)),
+            "".join(bases[perm.index(i) - 1] for i in range(1, n)),
+        )
+        if best is None or key < best:
+            best = key
+    return best
 
 
 def enumerate_circuits(n: int, max_cnots: int):
@@ -197,14 +229,17 @@ def _flips(n_checks, q):
 
 
 def pareto_front(success, fidelity) -> np.ndarray:
-    """Indices of the points not dominated in (success, fidelity), success descending."""
-    order = np.lexsort((-fidelity, -success))
-    keep, best = [], -np.inf
-    for i in order:
-        if fidelity[i] > best + 1e-15:
-            keep.append(i)
-            best = fidelity[i]
-    return np.array(keep, dtype=np.intp)
+    """Indices of the points not dominated in (success, fidelity), success descending.
+
+    Points equal to within rounding (:func:`optimise.pareto.quantise`) are one
+    point: the first of them in that order is kept.
+    """
+    success, fidelity = np.asarray(success, dtype=float), np.asarray(fidelity, dtype=float)
+    points = quantise(np.column_stack([success, fidelity]))
+    front = np.flatnonzero(pareto_mask(points, (True, True)))
+    front = front[np.lexsort((-fidelity[front], -success[front]))]
+    _, first = np.unique(points[front], axis=0, return_index=True)
+    return front[np.sort(first)]
 
 
 @dataclass(frozen=True)
@@ -352,10 +387,13 @@ def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, kept_pair=None,
     key = _cache_key(n, max_cnots, pair, two_qubit, measurement, kept_pair)
     path = folder / f"rounds-n{n}-g{max_cnots}-{key}.json"
     if path.exists():
-        data = json.loads(path.read_text())
-        if data.get("format") == FORMAT:
-            fields = {k: data[k] for k in ("before", "after", "build_seconds", "entries")}
-            return Catalogue(n, max_cnots, **fields), True
+        try:
+            data = json.loads(path.read_text())
+            if data.get("format") == FORMAT:
+                fields = {k: data[k] for k in ("before", "after", "build_seconds", "entries")}
+                return Catalogue(n, max_cnots, **fields), True
+        except (ValueError, KeyError, TypeError, AttributeError):
+            pass  # a damaged cache file is a cache miss: built again and replaced below
     catalogue = build_catalogue(
         n,
         max_cnots,
@@ -364,8 +402,7 @@ def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, kept_pair=None,
         measurement=measurement,
         kept_pair=kept_pair,
     )
-    folder.mkdir(parents=True, exist_ok=True)
-    partial = path.with_suffix(".partial")
-    partial.write_text(json.dumps(catalogue.to_json(), indent=1))
-    partial.replace(path)
+    # a private temporary file per writer, then a rename: two processes building the
+    # same catalogue never see half of one
+    write_json_atomic(path, catalogue.to_json())
     return catalogue, False

@@ -8,6 +8,17 @@ import tempfile
 from pathlib import Path
 
 
+def _read_umask() -> int:
+    # os.umask can only be read by setting it: done once, at import, before any
+    # thread of ours writes a file, rather than on every write
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+_UMASK = _read_umask()
+
+
 def write_atomic(path, data: str | bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
     path = Path(path)
@@ -20,9 +31,7 @@ def write_atomic(path, data: str | bytes) -> Path:
             handle.flush()
             os.fsync(handle.fileno())
         # mkstemp makes the file private (0600); give it the mode a plain open() would
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
+        os.chmod(tmp, 0o666 & ~_UMASK)
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)

@@ -14,7 +14,12 @@ from numpy.testing import assert_allclose
 
 from models.circuits import canonical_circuit, read_circuit
 from models.steps import DOUBLE_SELECTION, run_step
-from optimise.catalogue import build_catalogue, enumerate_circuits, load_or_build
+from optimise.catalogue import (
+    build_catalogue,
+    enumerate_circuits,
+    load_or_build,
+    relabelling_class,
+)
 
 PAIR = np.array([0.88, 0.03, 0.02, 0.07])
 NOISE = {"two_qubit": 0.97, "measurement": 0.99}
@@ -31,19 +36,16 @@ def test_enumeration_is_complete_and_each_class_kept_once():
     circuits, before = enumerate_circuits(3, 3)
     gates = [(c, t) for c in range(3) for t in range(3) if c != t]
     assert before == (1 + 6 + 36 + 216) * 4
-    enumerated = {
-        canonical_circuit(3, tuple(("cnot",) + g for g in seq), b, (0,))[0].text
-        for seq, b in circuits
-    }
+    enumerated = {relabelling_class(3, seq, b) for seq, b in circuits}
     assert len(enumerated) == len(circuits)
+    assert enumerated == {(tuple(seq), b) for seq, b in circuits}  # each its own representative
     seen = set()
     for k in range(1, 4):
         for seq in product(gates, repeat=k):
             if len({p for g in seq for p in g}) < 3:
                 continue
             for bases in ("ZZ", "ZX", "XZ", "XX"):
-                form = canonical_circuit(3, tuple(("cnot",) + g for g in seq), bases, (0,))[0]
-                seen.add(form.text)
+                seen.add(relabelling_class(3, seq, bases))
     assert seen == enumerated
 
 
@@ -68,6 +70,14 @@ def test_reductions_leave_the_round_unchanged():
         canon = canonical_circuit(4, seq, bases, accepted)[0]
         a = run_step(written, [PAIR] * 4, [0] * 4, single_qubit=1.0, **NOISE)
         b = _run(canon, 4)
+        assert_allclose(a[0], b[0], atol=1e-12)
+        assert_allclose(a[1], b[1], atol=1e-12)
+        # the catalogue's relabelling class: the same on identical inputs that do not
+        # wait (accepting only "all agree", a pattern every relabelling keeps)
+        rep_seq, rep_bases = relabelling_class(4, tuple(g[1:] for g in seq), bases)
+        plain = canonical_circuit(4, seq, bases, (0,))[0]
+        rep = canonical_circuit(4, tuple(("cnot",) + g for g in rep_seq), rep_bases, (0,))[0]
+        a, b = _run(plain, 4), _run(rep, 4)
         assert_allclose(a[0], b[0], atol=1e-12)
         assert_allclose(a[1], b[1], atol=1e-12)
 
@@ -108,6 +118,12 @@ def test_catalogue_is_cached_and_loaded(tmp_path):
     from models.kinds import STEP_KINDS
 
     assert all(STEP_KINDS[name].n_inputs == 3 for name in names)
+    # a damaged cache file is a miss: rebuilt and replaced, never an error
+    (path,) = tmp_path.glob("rounds-n3-g2-*.json")
+    path.write_text('{"format": 1, "entr')
+    third, cached = load_or_build(3, 2, pair=PAIR, directory=tmp_path, **NOISE)
+    assert not cached and third.entries == first.entries
+    assert load_or_build(3, 2, pair=PAIR, directory=tmp_path, **NOISE)[1]
 
 
 def test_evaluate_prints_each_general_round_per_node(capsys):
