@@ -116,23 +116,53 @@ def add_parser(sub, parents) -> None:
     p.set_defaults(handler=run)
 
 
+# the option that sets each SearchSettings field, so that an error names what the user typed
+OPTION_OF_FIELD = {
+    "max_depth": "--depth",
+    "objectives": "--objectives",
+    "exhaustive_depth": "--exhaustive-depth",
+    "seed": "--seed",
+    "sampler": "--sampler",
+    "storage": "--storage",
+    "n_trials": "--trials",
+    "timeout_s": "--time",
+    "workers": "--workers",
+    "target_fidelity": "--target",
+    "max_memory_per_node": "--max-memory",
+    "max_time_per_output_s": "--max-time-per-output",
+}
+
+
 def settings_from(args):
-    """The :class:`optimise.settings.SearchSettings` the options ask for."""
+    """The :class:`optimise.settings.SearchSettings` the options ask for.
+
+    A value the settings refuse is an :class:`InputError` naming the option.
+    """
+    import re
+
+    from ..errors import InputError
     from ..settings import SearchSettings
 
-    return SearchSettings(
-        max_depth=args.depth,
-        objectives=args.objectives,
-        limits=common.limits(args),
-        exhaustive_depth=args.exhaustive_depth,
-        seed=args.seed,
-        sampler=args.sampler,
-        storage=args.storage,
-        n_trials=args.trials,
-        timeout_s=args.time,
-        workers=args.workers,
-        target_fidelity=args.target,
-    )
+    try:
+        return SearchSettings(
+            max_depth=args.depth,
+            objectives=args.objectives,
+            limits=common.limits(args),
+            exhaustive_depth=args.exhaustive_depth,
+            seed=args.seed,
+            sampler=args.sampler,
+            storage=args.storage,
+            n_trials=args.trials,
+            timeout_s=args.time,
+            workers=args.workers,
+            target_fidelity=args.target,
+        )
+    except ValueError as error:
+        fields = "|".join(OPTION_OF_FIELD)
+        message = re.sub(
+            rf"\b({fields})\b(?= =)", lambda m: OPTION_OF_FIELD[m.group(1)], str(error)
+        )
+        raise InputError(message) from error
 
 
 def run(args) -> int:

@@ -310,3 +310,12 @@ def test_a_sample_through_the_real_command(tmp_path):
 
 def test_the_corpus_is_a_few_hundred_cases():
     assert len(SEARCH_CASES) + len(RECIPE_CASES) + len(PROFILE_CASES) >= 300
+
+
+def test_a_setting_the_search_refuses_names_the_option(workdir, capsys):
+    # the user typed --exhaustive-depth, not the settings field (common practice, no source)
+    case = ["search", "--depth", "3", "--exhaustive-depth", "5", "--no-progress"]
+    code = main(case)
+    out, err = capsys.readouterr()
+    check_one_line(code, out, err, case)
+    assert "--exhaustive-depth" in err and "exhaustive_depth" not in err
