@@ -53,7 +53,11 @@ class StepStory:
     success_probability : float
         Exact probability that the step's checks agree.
     removed : ndarray (3,)
-        Weights of the error labels X, Y, Z the ideal step removes (negative: adds).
+        Weights of the error labels X, Y, Z the ideal step removes (negative: adds),
+        in the labels after the kept pair's rotation.
+    relabelled : str
+        How that rotation renamed the kept pair's labels (``"input Y is Z, input Z
+        is Y"``); empty when it is no gate.
     gate_noise : float
         Infidelity added by gate and measurement noise.
     memory_noise : float
@@ -73,6 +77,7 @@ class StepStory:
     removed: np.ndarray
     gate_noise: float
     memory_noise: float
+    relabelled: str = ""
 
     def sentence(self) -> str:
         """``removes X 0.0123, Y 0.0040; adds Z 0.0012; gates add 0.0031, memory 0.0002``."""
@@ -80,7 +85,8 @@ class StepStory:
         names = ("X", "Y", "Z")
         gone = [f"{n} {w:.4f}" for n, w in zip(names, self.removed, strict=True) if w > 5e-5]
         grown = [f"{n} {-w:.4f}" for n, w in zip(names, self.removed, strict=True) if w < -5e-5]
-        parts.append("removes " + (", ".join(gone) if gone else "no error weight"))
+        frame = f" (labels after the kept pair's rotation: {self.relabelled})" if self.relabelled else ""
+        parts.append("removes " + (", ".join(gone) if gone else "no error weight") + frame)
         if grown:
             parts.append("copies in " + ", ".join(grown))
         parts.append(f"gates and measurements add {self.gate_noise:.4f} infidelity")
@@ -165,7 +171,20 @@ def _stories(recipe, profile, prefix: str, depth: int) -> list[StepStory]:
                 removed=before[1:] - ideal[1:],
                 gate_noise=float(ideal[0] - noisy[0]),
                 memory_noise=float(noisy[0] - figures.fidelity),
+                relabelled=_relabelling(r.rotations[0]),
             )
         )
         kept = np.asarray(figures.bell, dtype=float)
     return stories
+
+
+def _relabelling(rotation: int) -> str:
+    """``"input Y is Z, input Z is Y"``: what a rotation does to the error labels."""
+    from models.rotations import PERMUTATIONS
+
+    names = "IXYZ"
+    return ", ".join(
+        f"input {names[k]} is {names[PERMUTATIONS[rotation, k]]}"
+        for k in (1, 2, 3)
+        if PERMUTATIONS[rotation, k] != k
+    )
