@@ -108,10 +108,12 @@ def test_unlimited_deep_layer_over_linear_rounds_equals_the_exhaustive_front(nam
 
 
 @pytest.mark.parametrize("name", ["perfect-rotations", "memory"])
-def test_trees_dominate_or_equal_the_exhaustive_front(name):
+def test_seeded_with_the_exhaustive_front_the_deep_front_dominates_or_equals_it(name):
+    # narrow on purpose: the seeds survive any pruning, with all their prefixes
     profile = PROFILES[name]
     exhaustive = exhaustive_front(profile, max_depth=3, codes=SMALL)
-    deep = deep_front(profile, max_depth=3, codes=SMALL, layers=0, width=0)
+    seeds = [r.notation for r in exhaustive.results]
+    deep = deep_front(profile, max_depth=4, codes=SMALL, layers=1, width=2, seeds=seeds)
     found = np.array([[r.fidelity, r.pair_yield] for r in deep.results])
     for r in exhaustive.results:
         assert np.any(
@@ -131,42 +133,42 @@ def test_mixed_level_trees_and_nested_pumping_evaluate_the_same():
         again = evaluate(r.notation, profile)
         assert_allclose(again.fidelity, r.fidelity, rtol=1e-12)
         assert_allclose(again.raw_pairs_per_output, r.raw_pairs_per_output, rtol=1e-12)
-        for step in recipe.rounds:
+        for i, step in enumerate(recipe.rounds):
             if step.source is not None:
-                mixed += step.source.depth != sum(1 for _ in recipe.rounds) - 1
+                # the kept pair has i rounds; a source of another depth mixes levels
+                mixed += step.source.depth != i
                 nested += any(s.source is not None for s in step.source.rounds)
     assert mixed > 0
     # nested pumping (a source that itself pumps with made pairs), evaluated by hand
     for text in ("sY.pY(sY.pZ(sY))", "pY(sY^2).dpYZZ(sY)"):
         recipe = parse_recipe(text)
-        made = _made_by_hand(recipe, profile, depth=3)
+        made = _made_by_hand(recipe, profile)
         want = evaluate(recipe, profile)
         assert_allclose(made.bell[0, 0], want.fidelity, rtol=1e-12)
         assert_allclose(made.raw_pairs[0], want.raw_pairs_per_output, rtol=1e-12)
 
 
-def _made_by_hand(recipe, profile, depth):
-    """The pair of a recipe built with advance / advance_sourced, level by level."""
-    grows = profile.bound().lattice(0).grows
+def _made_by_hand(recipe, profile):
+    """The pair of a recipe built with advance / advance_sourced, round by round."""
+    w = WIDEST - 1 if profile.bound().lattice(0).grows else 0
 
-    def build(rec, d_out):
-        # a pair that is the output of level d_out carries (depth - d_out) rounds of waits
-        chains = start_chains(profile, 1, rounds_ahead=depth)
-        d = 0
-        for step in rec.rounds:
-            d += 1
-            level = (depth - (d_out - len(rec.rounds) + d)) * (WIDEST - 1) if grows else 0
+    def build(rec, carry):
+        # a pair carrying `carry` lattice levels: each round before uses up WIDEST - 1
+        n = len(rec.rounds)
+        chains = start_chains(profile, 1, rounds_ahead=n + (carry // w if w else 0))
+        for i, step in enumerate(rec.rounds):
+            level = carry + (n - i - 1) * w
             if step.source is None:
                 chains, _ = advance(chains, [round_code(step)], profile, level=level)
             else:
-                source = build(step.source, d_out - len(rec.rounds) + d - 1)
+                source = build(step.source, level + w)
                 code = round_code(Round(step.selection, "raw", step.rotations, twirl=step.twirl))
                 chains, _ = advance_sourced(
                     chains, source, [code], profile, kept_index=[0], source_index=[0], level=level
                 )
         return chains
 
-    return build(recipe, depth)
+    return build(recipe, 0)
 
 
 def test_two_runs_give_identical_front_files(tmp_path):
