@@ -262,6 +262,11 @@ def baseline(name: str, depth: int) -> Recipe:
         close = difflib.get_close_matches(str(name), list(BASELINES), n=2)
         hint = f"; did you mean {' or '.join(map(repr, close))}?" if close else "."
         raise ValueError(f"unknown baseline {name!r}{hint} Known: {', '.join(BASELINES)}")
-    if isinstance(depth, bool) or not isinstance(depth, Integral) or depth < 1:
-        raise ValueError(f"depth = {depth!r} must be an integer >= 1 (the number of rounds)")
+    from .notation import MAX_ROUNDS
+
+    if isinstance(depth, bool) or not isinstance(depth, Integral) or not 1 <= depth <= MAX_ROUNDS:
+        shown = repr(depth) if len(repr(depth)) <= 40 else repr(depth)[:40] + "..."
+        raise ValueError(
+            f"depth = {shown} must be an integer in [1, {MAX_ROUNDS}] (the number of rounds)"
+        )
     return BASELINES[name].build(int(depth))

@@ -36,6 +36,12 @@ Rotation letters come before the source (``pY(sY)``; ``p(sY)Y`` is refused with
 that hint), and ``sY.pY(sY)``, whose source is the prefix so far, is the same
 procedure as ``sY^2``.
 
+Limits, so that every command answers at once: a recipe string has at most
+:data:`MAX_LENGTH` characters, at most :data:`MAX_ROUNDS` rounds in all (its
+sources' rounds included, each repeat counted), a repeat count of at most
+:data:`MAX_REPEAT`, and sources nested at most :data:`MAX_NESTING` deep. Past
+them, :func:`parse_recipe` raises a :class:`RecipeSyntaxError` saying which.
+
 A recipe's canonical string (:attr:`models.recipes.Recipe.notation`) is
 :func:`format_recipe` of :func:`canonical`; the rules of the canonical form,
 what each needs of the noise and the step kinds it is proven for are in
@@ -57,6 +63,10 @@ from .recipes import Recipe, Round
 from .rotations import ROTATION_NAMES
 
 __all__ = [
+    "MAX_LENGTH",
+    "MAX_NESTING",
+    "MAX_REPEAT",
+    "MAX_ROUNDS",
     "RecipeSyntaxError",
     "as_recipe",
     "canonical",
@@ -65,6 +75,17 @@ __all__ = [
     "recipe_from_json",
     "recipe_to_json",
 ]
+
+MAX_LENGTH = 1000  # characters of a recipe string
+MAX_ROUNDS = 64  # rounds in all, sources included (yields of 2**-64 are beyond any use)
+MAX_REPEAT = 64  # the n of '^n'
+MAX_NESTING = 8  # sources within sources
+LIMITS_SENTENCE = (
+    f"a recipe has at most {MAX_ROUNDS} rounds in all (sources included), a repeat count "
+    f"of at most {MAX_REPEAT}, sources nested at most {MAX_NESTING} deep and at most "
+    f"{MAX_LENGTH} characters"
+)
+_SHOWN = 60  # characters of a long recipe string shown in an error
 
 # notation token -> (selection, pumping); longest first, so that "dp" is not read as "d" + "p"
 _TOKENS = sorted(
@@ -87,6 +108,9 @@ class RecipeSyntaxError(ValueError):
         Index of the offending character (``len(text)`` for a premature end).
     expected : str
         What the grammar allows there.
+    diagram : str
+        Two lines: the string (a window of it, if long) and a caret under the
+        offending character. The message itself is one line.
     """
 
     def __init__(self, text: str, position: int, expected: str):
@@ -94,9 +118,12 @@ class RecipeSyntaxError(ValueError):
         self.position = position
         self.expected = expected
         found = repr(text[position]) if position < len(text) else "the end of the recipe"
+        start = max(0, min(position - _SHOWN // 2, len(text) - _SHOWN))
+        window = text[start : start + _SHOWN]
+        self.diagram = f"  {window}\n  {' ' * (position - start)}^"
+        shown = repr(text) if len(text) <= _SHOWN else f"{text[:_SHOWN]!r}... ({len(text)} characters)"
         super().__init__(
-            f"cannot read recipe {text!r}: found {found} at column {position + 1}\n"
-            f"  {text}\n  {' ' * position}^\n"
+            f"cannot read recipe {shown}: found {found} at column {position + 1}; "
             f"expected {expected}"
         )
 
@@ -105,6 +132,8 @@ class _Parser:
     def __init__(self, text: str):
         self.text = text
         self.pos = 0
+        self.nesting = 0
+        self.rounds = 0
 
     def peek(self, n: int = 1) -> str:
         return self.text[self.pos : self.pos + n]
@@ -188,8 +217,12 @@ class _Parser:
                     f"{kind!r} sacrifices copies of the pair so far"
                 )
             opened = self.pos
+            if self.nesting == MAX_NESTING:
+                self.fail(f"a source nested at most {MAX_NESTING} deep (a limit of stillroom)")
             self.pos += 1
+            self.nesting += 1
             source = self.recipe(")")
+            self.nesting -= 1
             if self.peek() != ")":
                 self.fail(f"')' to close the source opened at column {opened + 1}")
             self.pos += 1
@@ -205,9 +238,15 @@ class _Parser:
                 self.pos += 1
             if self.pos == digits_at:
                 self.fail("a repeat count (an integer >= 2) after '^'")
-            count = int(self.text[digits_at : self.pos])
+            digits = self.text[digits_at : self.pos]
+            count = int(digits) if len(digits) <= 6 else MAX_REPEAT + 1
             if count < 2:
                 self.fail("a repeat count >= 2 (omit '^' for a single round)", digits_at)
+            if count > MAX_REPEAT:
+                self.fail(f"a repeat count of at most {MAX_REPEAT} (a limit of stillroom)", digits_at)
+        self.rounds += count
+        if self.rounds > MAX_ROUNDS:
+            self.fail(f"at most {MAX_ROUNDS} rounds in all (a limit of stillroom)", start)
         nxt = self.peek()
         if source is not None and nxt in ROTATION_NAMES and not twirl and count == 1:
             self.fail(
@@ -246,7 +285,8 @@ def parse_recipe(text: str) -> Recipe:
     Raises
     ------
     RecipeSyntaxError
-        With the string, a caret under the offending character and what was expected.
+        One line: the column and what was expected there (``diagram`` shows it), also
+        for a recipe beyond the limits (:data:`LIMITS_SENTENCE`).
 
     Examples
     --------
@@ -255,14 +295,13 @@ def parse_recipe(text: str) -> Recipe:
     >>> parse_recipe("sY~x")
     Traceback (most recent call last):
     ...
-    models.notation.RecipeSyntaxError: cannot read recipe 'sY~x': found 'x' at column 4
-      sY~x
-         ^
-    expected '^', '.' or the end of the recipe
+    models.notation.RecipeSyntaxError: cannot read recipe 'sY~x': found 'x' at column 4; expected '^', '.' or the end of the recipe
     """
     if not isinstance(text, str):
         raise ValueError(f"recipe = {text!r} must be a string such as 'sY^3'")
     parser = _Parser(text.strip())
+    if len(parser.text) > MAX_LENGTH:
+        parser.fail(f"at most {MAX_LENGTH} characters (a limit of stillroom)", MAX_LENGTH)
     if not parser.text:
         parser.fail("a recipe such as 'sY^3', or 'raw' for the raw pair")
     recipe = parser.recipe("")

@@ -68,5 +68,13 @@ def user_message(error: BaseException) -> str:
     """
     if isinstance(error, OSError) and not isinstance(error, StillroomError):
         where = f"{error.filename}: " if error.filename is not None else ""
-        return f"stillroom: {where}{error.strerror or error}"
-    return f"stillroom: {error}"
+        text = f"{where}{error.strerror or error}"
+    else:
+        text = str(error)
+    text = " ".join(text.split())  # one line, whatever the message held
+    if len(text) > MAX_MESSAGE:
+        text = text[: MAX_MESSAGE - 40] + f"... ({len(text)} characters)"
+    return f"stillroom: {text}"
+
+
+MAX_MESSAGE = 1000

@@ -7,15 +7,19 @@ from __future__ import annotations
 
 import math
 
+import optuna
+from optuna.trial import TrialState
+
 from models.evaluate import evaluate
 
 from .limits import Limits
 from .objectives import objective_values
-from .processes import worker_identity
+from .processes import checkpoint, worker_identity
 from .samplers import ERROR_ATTR
 from .space import suggest_recipe
 
 WORKER_ATTR = "worker"
+REPEAT_ATTR = "repeat_of"
 
 
 class Objective:
@@ -24,25 +28,62 @@ class Objective:
     Each trial gets user attributes ``recipe`` (canonical notation), ``recipe_id``,
     ``result`` (``RecipeResult.to_dict()``) and ``worker``; with limits, one optuna
     constraint per limit (> 0: violated).
+
+    A recipe is evaluated once per study: a trial that draws a recipe already
+    COMPLETE in the study (by ``recipe_id``, whichever process ran it), or being
+    evaluated by a trial of lower number, is told PRUNED with ``repeat_of`` naming
+    that trial. It counts towards the budget (so a study of a small space ends) but
+    never enters the front twice. The check is made when the recipe is drawn and,
+    on a storage ``shared`` with other processes, again after its evaluation, for
+    two processes that drew it at the same moment.
     """
 
-    def __init__(self, profile, *, max_depth: int, objectives, limits: Limits):
+    def __init__(self, profile, *, max_depth: int, objectives, limits: Limits, shared=False):
+        self.shared = shared
         self.profile = profile
         self.max_depth = max_depth
         self.objectives = tuple(objectives)
         self.limits = limits
         self.worker = worker_identity()
 
+    @staticmethod
+    def _skip_repeat(trial, recipe) -> None:
+        first = repeat_of(trial.study, recipe.recipe_id, trial.number)
+        if first is not None:
+            trial.set_user_attr("recipe", recipe.notation)
+            trial.set_user_attr(REPEAT_ATTR, first)
+            raise optuna.TrialPruned(f"recipe {recipe.notation} is trial {first}'s")
+
     def __call__(self, trial):
+        checkpoint("ask")
         trial.set_user_attr(WORKER_ATTR, self.worker)
         try:
             recipe = suggest_recipe(trial, self.max_depth)
+        except Exception as error:
+            trial.set_user_attr(ERROR_ATTR, f"{type(error).__name__}: {error}")
+            raise
+        # recorded before the evaluation, so that other processes see it is taken
+        trial.set_user_attr("recipe_id", recipe.recipe_id)
+        self._skip_repeat(trial, recipe)
+        try:
             result = evaluate(recipe, self.profile)
         except Exception as error:
             trial.set_user_attr(ERROR_ATTR, f"{type(error).__name__}: {error}")
             raise
         record(trial, result, self.limits)
+        if self.shared:  # again, last: another process may have drawn it in the same instant
+            self._skip_repeat(trial, recipe)
         return objective_values(result, self.objectives)
+
+
+def repeat_of(study, recipe_id: str, number: int) -> int | None:
+    """The trial that has (or is evaluating, at a lower number) this recipe, or None."""
+    for other in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE, TrialState.RUNNING)):
+        if other.number == number or other.user_attrs.get("recipe_id") != recipe_id:
+            continue
+        if other.state == TrialState.COMPLETE or other.number < number:
+            return other.number
+    return None
 
 
 def trial_attrs(result) -> dict:

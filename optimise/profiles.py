@@ -91,7 +91,10 @@ class Parameter:
                 f"{where} = {_show(value)} is not a number; it is {self.meaning}"
                 f"{' in ' + self.unit if self.unit else ''}"
             )
-        value = float(value)
+        try:
+            value = float(value)
+        except OverflowError:  # an integer beyond any float
+            value = math.inf if value > 0 else -math.inf
         bad = (
             math.isnan(value)
             or value < self.low
@@ -190,9 +193,8 @@ UNDISTILLABLE = (
 def _show(value) -> str:
     if isinstance(value, float):
         return f"{value:g}"
-    if isinstance(value, str):
-        return repr(value)
-    return str(value)
+    text = repr(value) if isinstance(value, str) else str(value)
+    return text if len(text) <= 40 else f"{text[:30]}... ({len(text)} characters)"
 
 
 def _suggest(word: str, choices) -> str:
@@ -312,7 +314,7 @@ def profile_from_data(data: dict, source: str = "<profile>") -> Profile:
         )
     name = data.get("name") or (Path(source).stem if not source.startswith("<") else "profile")
     with user_input(source):  # the model's own checks, should ours miss one
-        return Profile(
+        profile = Profile(
             raw_pair=raw,
             noise=NodeNoise(
                 two_qubit=values["two_qubit"],
@@ -325,14 +327,72 @@ def profile_from_data(data: dict, source: str = "<profile>") -> Profile:
             pair_rate_hz=values["pair_rate_hz"],
             name=name,
         )
+    _check_derived(profile, source)
+    return profile
+
+
+# recipes of each step kind: if these give finite figures, the profile's derived rates do
+_PROBE_RECIPES = ("raw", "sY", "pY", "dsY", "dpY", "sY~.pX(sY)")
+
+
+def _check_derived(profile: Profile, source: str) -> None:
+    """Every figure the model derives from the profile is finite (``t1_s = 5e-324`` is not).
+
+    A value inside its range may still overflow where the model divides by it or
+    takes it to a power; a few probe recipes of every step kind are evaluated with
+    floating-point errors raised, so such a profile is refused here, in one line,
+    rather than as a NaN deep inside a search.
+    """
+    import numpy as np
+
+    from models.evaluate import evaluate
+
+    noise = profile.noise
+    for name, value in (("t1_s", noise.t1_s), ("t2_s", noise.t2_s)):
+        if value and not math.isfinite(1.0 / value):  # the decay rate the memory model uses
+            raise InputError(
+                f"{source}: [memory] {name} = {value:g} s gives an infinite decay rate; "
+                "give a time of at least 1e-300 s"
+            )
+    if profile.pair_rate_hz and not math.isfinite(1.0 / profile.pair_rate_hz):
+        raise InputError(
+            f"{source}: [link] pair_rate_hz = {profile.pair_rate_hz:g} gives an infinite mean "
+            "wait; give a rate of at least 1e-300 Hz"
+        )
+    try:
+        with np.errstate(over="raise", invalid="raise", divide="raise"):
+            for recipe in _PROBE_RECIPES:
+                result = evaluate(recipe, profile)
+                figures = [*result.bell, result.pair_yield, result.raw_pairs_per_output]
+                if result.time_per_output_s is not None:
+                    figures.append(result.time_per_output_s)
+                if not all(math.isfinite(float(x)) for x in figures):
+                    raise FloatingPointError(f"a figure of {recipe} is not finite")
+    except (FloatingPointError, OverflowError, ZeroDivisionError, ValueError) as error:
+        raise InputError(
+            f"{source}: the model's figures overflow for this profile ({error}); a time, "
+            "rate or length is too extreme to compute with"
+        ) from None
+
+
+MAX_PROFILE_BYTES = 256 * 1024  # a profile is a dozen lines; anything larger is not one
 
 
 def parse_profile(text: str, source: str = "<profile>") -> Profile:
     """Parse the text of a profile file; ``source`` names it in error messages."""
+    if len(text) > MAX_PROFILE_BYTES:
+        raise InputError(
+            f"{source}: {len(text):,d} characters; a profile has at most "
+            f"{MAX_PROFILE_BYTES:,d} (it is a dozen lines)"
+        )
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
-        raise InputError(f"{source}: not valid TOML: {error}") from None
+        raise InputError(f"{source}: not valid TOML: {' '.join(str(error).split())}") from None
+    except RecursionError:  # the TOML reader recurses once per nested table or array
+        raise InputError(f"{source}: not valid TOML for a profile: nested too deep") from None
+    except (OverflowError, ValueError, MemoryError) as error:
+        raise InputError(f"{source}: not valid TOML for a profile: {error}") from None
     return profile_from_data(data, source)
 
 
@@ -340,7 +400,13 @@ def load_profile(path) -> Profile:
     """Read and check a profile file; raises :class:`InputError` on any problem."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        with path.open("rb") as handle:
+            raw = handle.read(MAX_PROFILE_BYTES + 1)
+        if len(raw) > MAX_PROFILE_BYTES:
+            raise InputError(
+                f"{path}: larger than {MAX_PROFILE_BYTES:,d} bytes; a profile is a dozen lines"
+            )
+        text = raw.decode("utf-8")
     except FileNotFoundError:
         raise InputError(f"profile file {str(path)!r} not found") from None
     except IsADirectoryError:
@@ -364,8 +430,15 @@ def demo_profile() -> Profile:
 
 def profile_note(path=None) -> str | None:
     """The free-text ``note`` of a profile file (or of the demo when ``path`` is None)."""
-    text = demo_toml() if path is None else Path(path).read_text(encoding="utf-8")
-    note = tomllib.loads(text).get("note")
+    if path is None:
+        text = demo_toml()
+    else:
+        with Path(path).open("rb") as handle:  # already read once by load_profile: bounded
+            text = handle.read(MAX_PROFILE_BYTES + 1).decode("utf-8", errors="replace")
+    try:
+        note = tomllib.loads(text).get("note")
+    except (ValueError, RecursionError, OverflowError):
+        return None
     return note if isinstance(note, str) else None
 
 

@@ -1,4 +1,9 @@
-"""A rich progress bar for a search: trials done, rate, best fidelity, front size, time left."""
+"""A rich progress bar for a search: trials done, rate, best fidelity, front size, time left.
+
+The bar is one line of at most 80 columns (:data:`WIDTH`), also with a
+study of millions of trials: ``search ━━━━━━━━━━━━━━ 864/1000 12.3/s F 0.987650 front 14
+0:03:12 left``.
+"""
 
 from __future__ import annotations
 
@@ -10,20 +15,51 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, ProgressColumn, TextColumn
 from rich.text import Text
 
+WIDTH = 80
+BAR_WIDTH = 12
+
 
 class _FiguresColumn(ProgressColumn):
-    """``12.3 trials/s  best F 0.98765  front 14  left 0:03:12``."""
+    """``12.3/s F 0.987650 front 14 0:03:12 left`` (trials per second, best fidelity)."""
 
     def render(self, task) -> Text:
         done = task.completed - task.fields.get("first", 0)
         elapsed = max(task.elapsed or 0.0, 1e-9)
         rate = done / elapsed if done > 0 else 0.0
-        parts = [f"{rate:6.1f} trials/s"]
+        parts = [f"{_short(rate)}/s"]
         best = task.fields.get("best_fidelity")
-        parts.append("best F  --    " if best is None else f"best F {best:.6f}")
-        parts.append(f"front {task.fields.get('front_size', 0):3d}")
-        parts.append(f"left {_format_left(task, rate)}")
-        return Text("  ".join(parts))
+        parts.append("F    --   " if best is None else f"F {best:.6f}")
+        parts.append(f"front {task.fields.get('front_size', 0)}")
+        parts.append(f"{_format_left(task, rate)} left")
+        return Text(" ".join(parts))
+
+
+def _short(x: float) -> str:
+    """A rate in at most 5 characters: ``12.3``, ``1234``, ``12k``."""
+    if x < 100:
+        return f"{x:4.1f}"
+    if x < 10_000:
+        return f"{x:4.0f}"
+    if x < 1_000_000:
+        return f"{x / 1000:3.0f}k"
+    return f"{min(x / 1e6, 999):3.0f}M"
+
+
+def _count(n) -> str:
+    """Trials in at most 5 characters: ``864``, ``12345``, ``1.2M``."""
+    n = int(n)
+    if n < 100_000:
+        return str(n)
+    if n < 10_000_000:
+        return f"{n / 1e6:.1f}M" if n >= 1_000_000 else f"{n // 1000}k"
+    return f"{n // 1_000_000}M"
+
+
+class _TrialsColumn(ProgressColumn):
+    """``864/1000`` (compact for large studies)."""
+
+    def render(self, task) -> Text:
+        return Text(f"{_count(task.completed)}/{_count(task.total or 0)}")
 
 
 def _format_left(task, rate) -> str:
@@ -51,23 +87,27 @@ class SearchProgress:
     timeout_s : float or None
         Wall-time budget of this run; the time left is the sooner of the two ends.
     enabled : bool
+    console : rich.console.Console, optional
+        Where the bar is drawn (default: stderr).
     """
 
-    def __init__(self, total: int, done: int = 0, timeout_s=None, enabled: bool = True):
+    def __init__(
+        self, total: int, done: int = 0, timeout_s=None, enabled: bool = True, console=None
+    ):
         self.enabled = enabled
         self.total = total
         self.done = done
         self.deadline = None if timeout_s is None else time.monotonic() + timeout_s
         self._progress = None
         self._task = None
-        self.console = Console(file=sys.stderr)
+        self.console = console if console is not None else Console(file=sys.stderr)
 
     def __enter__(self):
         if self.enabled:
             self._progress = Progress(
                 TextColumn("[bold]search"),
-                BarColumn(),
-                TextColumn("{task.completed}/{task.total} trials"),
+                BarColumn(bar_width=BAR_WIDTH),
+                _TrialsColumn(),
                 _FiguresColumn(),
                 console=self.console,
                 transient=False,

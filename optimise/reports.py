@@ -12,7 +12,8 @@
     space, completeness) with the front and the baselines; its keys are
     documented in ``optimise/schema.json`` (``"kind": "recipes"``).
 ``table.tex``
-    a booktabs ``table`` ready for ``\\input`` (needs ``\\usepackage{booktabs}``).
+    a booktabs ``table`` ready for ``\\input`` (needs ``\\usepackage{booktabs}``),
+    written by :mod:`optimise.latex`.
 ``table.md``
     the same table in Markdown.
 ``front.png``, ``front.svg``
@@ -26,10 +27,12 @@ from __future__ import annotations
 
 import csv
 import io
+import math
 from datetime import UTC, datetime
 from pathlib import Path
 
-from .labels import baseline_label, fmt_fidelity, fmt_number, fmt_time
+from .labels import fmt_fidelity, fmt_number, fmt_time
+from .rows import Row
 
 ASSUMPTIONS = (
     "Model assumptions: every pair is Bell-diagonal; gate noise is depolarising (Pauli) "
@@ -197,6 +200,7 @@ HEADERS = (
     ("rounds", "rounds"),
     ("time / output", "time/out"),
 )
+RATE_HEADER = "output rate (pairs/s)"
 
 
 def recipe_cells(r) -> list[str]:
@@ -210,6 +214,20 @@ def recipe_cells(r) -> list[str]:
         str(r.rounds),
         fmt_time(r.time_per_output_s),
     ]
+
+
+def has_pair_rate(profile: dict) -> bool:
+    """True when the profile gives a raw-pair rate, so output pairs per second mean something."""
+    rate = profile.get("pair_rate_hz")
+    return rate is not None and math.isfinite(rate)
+
+
+def rate_cell(r) -> str:
+    """Output pairs per second, ``1 / time per output`` (``0`` for a recipe that never succeeds)."""
+    t = r.time_per_output_s
+    if t is None or math.isinf(t):
+        return "0"
+    return "inf" if t == 0 else fmt_number(1.0 / t, 3)
 
 
 def hashing_sentence(profile: dict) -> str:
@@ -239,114 +257,202 @@ def _completeness(front) -> str:
     return "; ".join(parts) + "."
 
 
-def table_md(front) -> str:
-    """The front and baselines as a Markdown table, ending with :data:`ASSUMPTIONS`."""
-    name = front.profile_name
-    lines = [
-        f"# Pareto front: {name}",
-        "",
-        "| " + " | ".join(h for h, _ in HEADERS) + " |",
-        "|" + "|".join(["---:"] + [":---"] + ["---:"] * (len(HEADERS) - 2)) + "|",
+def profile_sentence(profile: dict) -> str:
+    """The profile's figures in one sentence (a key left at its perfect value is said so)."""
+    bell = ", ".join(f"{w:.4g}" for w in profile["raw_pair"])
+    parts = [
+        f"Profile {profile.get('name', 'profile')}: raw pair (Phi+, Psi+, Psi-, Phi-) = ({bell})",
+        f"CNOT p = {profile.get('two_qubit', 1.0):g}",
+        f"rotation p1 = {profile.get('single_qubit', 1.0):g}",
+        f"measurement eta = {profile.get('measurement', 1.0):g}",
     ]
-    for i, r in enumerate(front.results, 1):
-        cells = recipe_cells(r)
-        cells[0] = f"`{cells[0]}`"
-        lines.append("| " + " | ".join([str(i)] + cells) + " |")
-    if front.baselines:
-        lines += ["", "Textbook baselines (reference):", ""]
-        lines.append("| baseline | " + " | ".join(h for h, _ in HEADERS[1:]) + " |")
-        lines.append("|" + "|".join([":---", ":---"] + ["---:"] * (len(HEADERS) - 2)) + "|")
-        for b in front.baselines:
-            cells = recipe_cells(b.result)
-            cells[0] = f"`{cells[0]}`"
-            lines.append("| " + " | ".join([baseline_label(b.name, b.depth)] + cells) + " |")
-    lines += ["", hashing_sentence(front.profile), "", _completeness(front), "", ASSUMPTIONS, ""]
-    return "\n".join(lines)
+    t1, t2 = profile.get("t1_s"), profile.get("t2_s")
+    parts.append(
+        "perfect memory"
+        if t1 is None and t2 is None
+        else f"memory T1 = {_seconds(t1)}, T2 = {_seconds(t2)}"
+    )
+    parts.append(f"link {profile.get('length_km', 0.0):g} km")
+    parts.append(
+        f"raw pairs at {profile['pair_rate_hz']:g} per s"
+        if has_pair_rate(profile)
+        else "raw pairs arrive instantly"
+    )
+    return "; ".join(parts) + "."
 
 
-_LATEX_SPECIAL = {
-    "\\": r"\textbackslash{}",
-    "&": r"\&",
-    "%": r"\%",
-    "$": r"\$",
-    "#": r"\#",
-    "_": r"\_",
-    "{": r"\{",
-    "}": r"\}",
-    "~": r"\textasciitilde{}",
-    "^": r"\textasciicircum{}",
-}
+def _seconds(t) -> str:
+    return "inf" if t is None else f"{t:g} s"
 
 
-def latex_escape(text: str) -> str:
-    r"""Escape LaTeX's special characters.
+def provenance(front) -> list[str]:
+    """Sentences saying where a table's figures come from; every table carries them.
 
-    Examples
-    --------
-    >>> latex_escape("sY^3 & 50%")
-    'sY\\textasciicircum{}3 \\& 50\\%'
+    The profile's figures, stillroom's version, the seed and sampler, the dates
+    of the search, its budget and limits, the searched space and what of it is
+    proven complete. No date of writing the report: the same front gives the
+    same table.
     """
-    return "".join(_LATEX_SPECIAL.get(c, c) for c in text)
+    settings = front.settings or {}
+    version = front.stillroom_version or _version()
+    sampler = settings.get("sampler")
+    sampler_name = sampler.get("name") if isinstance(sampler, dict) else sampler
+    run = [f"stillroom {version}", f"seed {front.seed if front.seed is not None else 'unknown'}"]
+    if sampler_name:
+        run.append(f"sampler {sampler_name}")
+    if front.created:
+        run.append(f"search started {front.created}")
+    if front.updated:
+        run.append(f"front as of {front.updated}")
+    budget = []
+    if settings.get("n_trials") is not None:
+        budget.append(f"{settings['n_trials']} trials")
+    if settings.get("timeout_s"):
+        budget.append(f"{fmt_time(settings['timeout_s'])} of wall time")
+    if settings.get("max_depth") is not None:
+        budget.append(f"recipes of up to {settings['max_depth']} rounds")
+    if budget:
+        run.append("budget " + ", ".join(budget))
+    from .limits import as_limits
+
+    try:
+        limits = as_limits(settings.get("limits"))
+    except (TypeError, ValueError):
+        limits = None
+    lines = [profile_sentence(front.profile), "; ".join(run) + "."]
+    if limits is not None and limits.any:
+        lines.append(f"Limits: {limits.describe()}.")
+    if isinstance(front.searched_space, str):
+        lines.append(f"Searched: {front.searched_space}.")
+    lines.append("Completeness: " + _completeness(front))
+    return lines
 
 
-def table_tex(front) -> str:
-    """A booktabs table (one row per front recipe, baselines below a rule)."""
-    name = latex_escape(front.profile_name)
-    label = "".join(c if c.isalnum() else "-" for c in front.profile_name)
+def _selection_sentence(shown: int, total: int, top: int) -> str:
+    if shown >= total:
+        return f"All {total} recipes of the front are shown."
+    return (
+        f"{shown} of the front's {total} recipes are shown: its two ends and, greedily, the "
+        "recipe farthest from those already shown in (log raw pairs per output, log 1 - F); "
+        f"rows with figures identical to the digits shown are merged. Every recipe is in "
+        f"front.csv and recipes.json (stillroom table --top 0 shows all)."
+    )
 
-    def row(first: str, r) -> str:
-        cells = recipe_cells(r)
-        cells[0] = r"\texttt{" + latex_escape(cells[0]) + "}"
-        cells[1:] = [latex_escape(c) for c in cells[1:]]
-        return "  " + " & ".join([first] + cells) + r" \\"
 
+def report_rows(front, top: int, targets):
+    from .rows import baseline_rows, front_rows, target_rows
+
+    chosen = front_rows(front.results, top)
+    baselines = baseline_rows(front.baselines, every=top <= 0)
+    wanted = list(targets or ())
+    if front.target is not None and front.target.target_fidelity not in wanted:
+        wanted.append(front.target.target_fidelity)
+    return chosen, baselines, target_rows(front, sorted(wanted))
+
+
+def _md_recipe(row) -> str:
+    text = f"`{row.result.notation}`"
+    if row.written:
+        text += f" (built as `{row.written}`)"
+    if row.also:
+        text += " (also: " + ", ".join(a if row.label else f"`{a}`" for a in row.also) + ")"
+    return text
+
+
+def table_md(front, *, top: int | None = None, targets=()) -> str:
+    """The front, the baselines and the targets as Markdown, with provenance and assumptions.
+
+    Parameters
+    ----------
+    front : optimise.front.Front
+    top : int, optional
+        Front rows shown (:func:`optimise.rows.cover`); 0 shows every recipe and
+        every baseline; default :data:`optimise.rows.DEFAULT_TOP`.
+    targets : sequence of float
+        Target fidelities, one row each (the run's own ``--target`` is added).
+    """
+    from .rows import DEFAULT_TOP, canonical_notes
+
+    top = DEFAULT_TOP if top is None else top
+    rows, baselines, target_table = report_rows(front, top, targets)
+    rate = has_pair_rate(front.profile)
+    headers = [h for h, _ in HEADERS] + ([RATE_HEADER] if rate else [])
+    numbers = ["---:"] * (len(headers) - 2)
     lines = [
-        "% stillroom report table; needs \\usepackage{booktabs}",
-        r"\begin{table}[tbp]",
-        r"  \centering",
-        r"  \caption{Pareto-optimal purification recipes for the noise profile \texttt{"
-        + name
-        + r"}: output fidelity $F$, yield (output pairs per raw pair), memory qubits per "
-        r"node, rounds and mean time per output pair. "
-        + latex_escape(hashing_sentence(front.profile))
-        + "}",
-        r"  \label{tab:stillroom-" + label + "}",
-        r"  \begin{tabular}{rlrrrrrr}",
-        r"  \toprule",
-        "  " + " & ".join(t for _, t in HEADERS) + r" \\",
-        r"  \midrule",
-    ]
-    for i, r in enumerate(front.results, 1):
-        lines.append(row(str(i), r))
-    if front.baselines:
-        lines.append(r"  \midrule")
-        lines.append(r"  \multicolumn{8}{l}{\emph{textbook baselines (reference)}} \\")
-        for b in front.baselines:
-            lines.append(row(latex_escape(baseline_label(b.name, b.depth)), b.result))
-    lines += [
-        r"  \bottomrule",
-        r"  \end{tabular}",
-        r"  \par\smallskip",
-        r"  \begin{minipage}{0.95\linewidth}\footnotesize",
-        "  " + latex_escape(_completeness(front)) + " " + latex_escape(ASSUMPTIONS),
-        r"  \end{minipage}",
-        r"\end{table}",
+        f"# Pareto front: {front.profile_name}",
         "",
+        _selection_sentence(len(rows), len(front.results), top),
+        "",
+        "| " + " | ".join(headers) + " |",
+        "|" + "|".join(["---:", ":---"] + numbers) + "|",
     ]
+    for i, row in enumerate(rows, 1):
+        cells = recipe_cells(row.result) + ([rate_cell(row.result)] if rate else [])
+        cells[0] = _md_recipe(row)
+        lines.append("| " + " | ".join([str(i)] + cells) + " |")
+    if baselines:
+        shown = "" if top <= 0 else ", those no other baseline beats in both fidelity and yield"
+        lines += ["", f"Textbook baselines (reference{shown}):", ""]
+        lines.append("| baseline | " + " | ".join(headers[1:]) + " |")
+        lines.append("|" + "|".join([":---", ":---"] + numbers) + "|")
+        for row in baselines:
+            cells = recipe_cells(row.result) + ([rate_cell(row.result)] if rate else [])
+            cells[0] = _md_recipe(Row(row.result, (), "", row.written))
+            label = row.label + (f" (also: {', '.join(row.also)})" if row.also else "")
+            lines.append("| " + " | ".join([label] + cells) + " |")
+        reasons = [
+            " and ".join(f"`{built}` reads `{canonical}`" for built, canonical in pairs)
+            + f": {why}."
+            for pairs, why in canonical_notes(baselines, front.baselines)
+        ]
+        if reasons:
+            lines += ["", "Baselines are shown in canonical form. " + " ".join(reasons)]
+    if target_table:
+        lines += ["", "Cheapest recipe per target fidelity (within the run's limits):", ""]
+        lines.append(
+            "| target F | recipe | fidelity F | raw pairs / output | best baseline "
+            "| its raw pairs / output | saving |"
+        )
+        lines.append("|---:|:---|---:|---:|:---|---:|---:|")
+        for t in target_table:
+            lines.append("| " + " | ".join(_target_cells(t, code="`")) + " |")
+    lines += ["", hashing_sentence(front.profile), ""]
+    lines += [" ".join(provenance(front)), "", ASSUMPTIONS, ""]
     return "\n".join(lines)
+
+
+def _target_cells(t, *, code: str) -> list[str]:
+    if t.recipe is None:
+        mine = ["not reached", "", ""]
+    else:
+        mine = [
+            f"{code}{t.recipe.notation}{code}",
+            fmt_fidelity(t.recipe.fidelity),
+            fmt_number(t.recipe.raw_pairs_per_output),
+        ]
+    if t.baseline is None:
+        theirs = ["none reaches it", ""]
+    else:
+        theirs = [t.baseline.label, fmt_number(t.baseline.result.raw_pairs_per_output)]
+    saving = "" if t.saving_percent is None else f"{t.saving_percent:.1f}%"
+    return [f"{t.target:g}"] + mine + theirs + [saving]
 
 
 # ----------------------------------------------------------------------------- all
 
 
-def write_reports(run_dir, *, plots: bool = True) -> list[Path]:
+def write_reports(run_dir, *, plots: bool = True, top: int | None = None, targets=()) -> list[Path]:
     """(Re)write every report file of a run folder from its front.
 
-    Returns the paths written. Each goes through :func:`optimise.files.write_atomic`
-    (by way of :class:`optimise.run.Run`), so a reader (or a running search) never
-    sees half a file. The plots are left out when ``plots`` is False or matplotlib
+    ``top`` and ``targets`` choose the tables' rows (:func:`table_md`); the
+    full front always goes to ``front.csv`` and ``recipes.json``, and the
+    targets are drawn on the plots. Returns the paths written. Each goes
+    through :func:`optimise.files.write_atomic` (by way of
+    :class:`optimise.run.Run`), so a reader (or a running search) never sees
+    half a file. The plots are left out when ``plots`` is False or matplotlib
     is not installed.
     """
+    from .latex import table_tex
     from .run import Run
 
     run = Run(run_dir)
@@ -354,12 +460,12 @@ def write_reports(run_dir, *, plots: bool = True) -> list[Path]:
     written = [
         run.write_text("front.csv", front_csv(front)),
         run.write_json("recipes.json", recipes_document(front)),
-        run.write_text("table.tex", table_tex(front)),
-        run.write_text("table.md", table_md(front)),
+        run.write_text("table.tex", table_tex(front, top=top, targets=targets)),
+        run.write_text("table.md", table_md(front, top=top, targets=targets)),
     ]
     if plots:
         from . import plots as plotting
 
         if plotting.available():
-            written += plotting.write_front_plots(front, run.path("front"))
+            written += plotting.write_front_plots(front, run.path("front"), targets=targets)
     return written

@@ -6,7 +6,12 @@ A trial stays RUNNING in the storage when its process is killed. On resume:
    be gone: a process of this host that no longer exists (or whose pid now belongs
    to a younger process), or, for RDB storages, a trial whose heartbeat stopped
    (optuna's own check). A trial of a live worker, here or on another machine, is
-   left alone.
+   left alone. A trial killed in the instant between being asked and recording its
+   worker carries no worker; every process registers itself on the study
+   (:func:`register_worker`) before it asks a trial, so such a trial is stale as
+   soon as no other registered process of this host is alive and none is
+   registered from another host (with another host registered, after
+   :data:`ORPHAN_GRACE`).
 2. :func:`reask_abandoned` evaluates again the recipe of every such trial (a FAIL
    without the objective's ``error`` attribute, which is how optuna also records a
    Ctrl-C) and adds it as a finished trial with the same parameters, distributions
@@ -28,22 +33,44 @@ from optuna.trial import TrialState, create_trial
 from models.evaluate import evaluate
 from models.kinds import N_INPUTS
 
-from .objective import WORKER_ATTR, trial_attrs, trial_constraints
+from .objective import REPEAT_ATTR, WORKER_ATTR, trial_attrs, trial_constraints
 from .objectives import objective_values
 from .processes import is_running
 from .samplers import ERROR_ATTR
 from .space import distributions_for, recipe_from_params
 
 REASK_ATTR = "reask_of"
+REGISTERED_PREFIX = "process "  # study user attributes naming the processes that worked on it
 ORPHAN_GRACE = timedelta(minutes=5)  # a RUNNING trial with no worker yet, for this long: dead
 
 
-def is_stale(trial, host: str | None = None, now: datetime | None = None) -> bool:
-    """Whether a RUNNING trial's worker is known to be gone (see the module docstring)."""
+def register_worker(study, identity: dict) -> None:
+    """Record on the study that this process (a :func:`worker_identity`) may ask trials."""
+    key = f"{REGISTERED_PREFIX}{identity['host']} {identity['pid']} {identity['start']}"
+    study.set_user_attr(key, identity)
+
+
+def registered_workers(study, *, besides: dict | None = None) -> list[dict]:
+    """The processes registered on the study, except ``besides`` (this one)."""
+    found = [v for k, v in study.user_attrs.items() if k.startswith(REGISTERED_PREFIX)]
+    return [w for w in found if besides is None or w != besides]
+
+
+def is_stale(
+    trial, host: str | None = None, now: datetime | None = None, workers: list | None = None
+) -> bool:
+    """Whether a RUNNING trial's worker is known to be gone (see the module docstring).
+
+    ``workers`` are the other processes registered on the study; None: unknown.
+    """
     host = host or socket.gethostname()
     owner = trial.user_attrs.get(WORKER_ATTR)
     if owner is None:
-        # the objective records its worker first thing; none for minutes means it died
+        here = [w for w in workers or () if w.get("host") == host]
+        if workers is not None and not any(is_running(w) for w in here):
+            if len(here) == len(workers):  # no process elsewhere could have asked it
+                return True
+        # none for minutes means it died
         start = trial.datetime_start
         return start is not None and (now or datetime.now()) - start > ORPHAN_GRACE
     if owner.get("host") != host:
@@ -51,14 +78,20 @@ def is_stale(trial, host: str | None = None, now: datetime | None = None) -> boo
     return not is_running(owner)
 
 
-def fail_stale_trials(study) -> list[int]:
-    """Mark FAIL the RUNNING trials of dead workers; returns their numbers."""
+def fail_stale_trials(study, me: dict | None = None) -> list[int]:
+    """Mark FAIL the RUNNING trials of dead workers; returns their numbers.
+
+    ``me`` is this process's :func:`worker_identity` when it has registered itself
+    (before asking any trial): then trials that no worker recorded are judged by
+    the other registered processes.
+    """
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # fail_stale_trials is flagged experimental
         optuna.storages.fail_stale_trials(study)  # RDB heartbeats; no-op elsewhere
+    workers = None if me is None else registered_workers(study, besides=me)
     failed = []
     for trial in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)):
-        if is_stale(trial):
+        if is_stale(trial, workers=workers):
             try:
                 study.tell(trial.number, state=TrialState.FAIL, skip_if_finished=True)
             except (ValueError, RuntimeError):
@@ -86,6 +119,10 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
     Returns the numbers of the trials asked again.
     """
     done = []
+    complete = {
+        t.user_attrs.get("recipe_id"): t.number
+        for t in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE,))
+    }
     for trial in abandoned_trials(study):
         params = dict(trial.system_attrs.get("fixed_params", {}))
         params.update(trial.params)
@@ -94,8 +131,21 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
         except (KeyError, ValueError):
             continue  # cut short before its recipe was drawn: the sampler draws it again
         used = _used_params(params, recipe.depth)
-        result = evaluate(recipe, profile)
         attrs = {k: v for k, v in trial.user_attrs.items() if k != ERROR_ATTR}
+        first = complete.get(recipe.recipe_id)
+        if first is not None:  # evaluated meanwhile by another trial: a repeat, as the objective
+            attrs.update({REASK_ATTR: trial.number, REPEAT_ATTR: first, WORKER_ATTR: worker})
+            study.add_trial(
+                create_trial(
+                    state=TrialState.PRUNED,
+                    params=used,
+                    distributions=distributions_for(used, max_depth),
+                    user_attrs=attrs,
+                )
+            )
+            done.append(trial.number)
+            continue
+        result = evaluate(recipe, profile)
         attrs.update(trial_attrs(result))
         attrs.update({REASK_ATTR: trial.number, WORKER_ATTR: worker, "depth": recipe.depth})
         constraints = trial_constraints(result, limits)
@@ -112,6 +162,7 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
                 constraints={k: min(v, 1e300) for k, v in constraints.items()} or None,
             )
         )
+        complete[recipe.recipe_id] = study.get_trials(deepcopy=False)[-1].number
         done.append(trial.number)
     return done
 

@@ -13,7 +13,11 @@ A run folder holds
     a cache of the exhaustive layer (:class:`optimise.exhaustive.ExhaustiveFront`);
 ``front.json``
     the current :class:`optimise.front.Front`, rewritten whenever it changes;
-``study.db`` (or another storage) and the report files, at paths :meth:`Run.path` hands out.
+``study.db`` (or another storage) and the report files, at paths :meth:`Run.path` hands out;
+``.search.lock``
+    while a search runs (:meth:`Run.lock`): the host and process id of the search
+    that owns the folder; a second search of the same folder on this machine is
+    refused with one line naming them.
 
 Every write is atomic (:mod:`optimise.files`). A missing, corrupt (not JSON) or
 foreign file (JSON of another shape, such as another version's) is one
@@ -24,16 +28,33 @@ from __future__ import annotations
 
 import json
 import math
+import os
+import re
+import time
+from contextlib import contextmanager
 from datetime import UTC, datetime
 from pathlib import Path
 
-from .errors import RunError
+from .errors import InputError, RunError
 from .files import write_atomic, write_json_atomic
+from .processes import checkpoint, worker_identity
+
+try:
+    import fcntl
+except ImportError:  # Windows: no advisory locks; one search per folder is then the user's care
+    fcntl = None
 
 SETTINGS_FILE = "settings.json"
 PROFILE_FILE = "profile.json"
 FRONT_FILE = "front.json"
 EXHAUSTIVE_FILE = "exhaustive.json"
+LOCK_FILE = ".search.lock"
+MAX_NAME_LENGTH = 100
+NAME_RULE = (
+    f"letters, digits, '.', '_' and '-', starting with a letter or digit, at most "
+    f"{MAX_NAME_LENGTH} characters"
+)
+_NAME = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]*")
 EXHAUSTIVE_KEYS = (
     "complete_depth",
     "complete",
@@ -65,6 +86,24 @@ def stillroom_version() -> str:
         return tomllib.loads(pyproject.read_text())["project"]["version"]
     except (OSError, KeyError, ValueError):
         return "unknown"
+
+
+def check_run_name(name: str) -> str:
+    """A run name that is one safe folder name (see :data:`NAME_RULE`), or an InputError.
+
+    Examples
+    --------
+    >>> check_run_name("mine-2")
+    'mine-2'
+    >>> check_run_name("../x")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    optimise.errors.InputError: run name '../x' is not a folder name: use letters, ...
+    """
+    if not isinstance(name, str) or len(name) > MAX_NAME_LENGTH or not _NAME.fullmatch(name):
+        shown = repr(name) if len(str(name)) <= 40 else repr(str(name)[:40]) + "..."
+        raise InputError(f"run name {shown} is not a folder name: use {NAME_RULE}")
+    return name
 
 
 def same_values(old, new) -> bool:
@@ -168,10 +207,133 @@ class Run:
         )
 
     def write_json(self, name: str, obj) -> Path:
+        checkpoint("write")
         return write_json_atomic(self.path(name), obj)
 
     def write_text(self, name: str, data: str | bytes) -> Path:
+        checkpoint("write")
         return write_atomic(self.path(name), data)
+
+    # ------------------------------------------------------------------ ownership
+
+    def make_folder(self) -> Path | None:
+        """Create the run folder (and its parents); the topmost folder made, or None.
+
+        Raises
+        ------
+        InputError
+            One line naming the path when it cannot be a folder (a file in the way,
+            no permission, a read-only file system).
+        """
+        if self.folder.is_dir():
+            return None
+        if self.folder.exists():
+            raise InputError(f"run folder {self.folder}: exists and is not a folder")
+        top = self.folder
+        while not top.parent.exists() and top.parent != top:
+            top = top.parent
+        try:
+            self.folder.mkdir(parents=True)
+        except FileExistsError:
+            if not self.folder.is_dir():
+                raise InputError(
+                    f"run folder {self.folder}: a file is in the way of the folder"
+                ) from None
+            return None  # made by another process meanwhile
+        except OSError as error:
+            raise InputError(
+                f"run folder {self.folder}: cannot be made ({error.strerror or error})"
+            ) from error
+        return top
+
+    @contextmanager
+    def lock(self):
+        """Own the run folder for the block: one search per folder on this machine.
+
+        Creates the folder if needed (and removes it again if the block fails while
+        it holds nothing but the lock). The lock is an advisory ``flock`` on
+        :data:`LOCK_FILE`, so it dies with its process: a killed search leaves no
+        lock behind.
+
+        Raises
+        ------
+        RunError
+            When another search holds the folder (its host and process id named).
+        """
+        created = self.make_folder()
+        path = self.path(LOCK_FILE)
+        try:
+            handle = self._acquire(path)
+        except BaseException:
+            self._remove_if_empty(created)
+            raise
+        ok = False
+        try:
+            yield self
+            ok = True
+        finally:
+            if handle is not None:
+                path.unlink(missing_ok=True)  # before unlocking: a waiter re-checks the inode
+                os.close(handle)
+            if not ok:
+                self._remove_if_empty(created)
+
+    def _acquire(self, path: Path):
+        if fcntl is None:
+            return None
+        me = worker_identity()  # before locking: the holder's name is written at once
+        me["since"] = now_iso()
+        while True:
+            try:
+                handle = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+            except OSError as error:
+                raise InputError(
+                    f"run folder {self.folder}: cannot be written ({error.strerror or error})"
+                ) from error
+            try:
+                fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                os.close(handle)
+                raise RunError(self._held_message(path)) from None
+            try:
+                same = os.fstat(handle).st_ino == os.stat(path).st_ino
+            except FileNotFoundError:
+                same = False
+            if same:  # not a file its last holder removed while we opened it
+                break
+            os.close(handle)
+        os.ftruncate(handle, 0)
+        os.write(handle, json.dumps(me).encode())
+        return handle
+
+    def _held_message(self, path: Path) -> str:
+        who = "another process"
+        for _ in range(20):  # a holder that has just locked writes its name a moment later
+            try:
+                holder = json.loads(path.read_text(encoding="utf-8"))
+                who = f"process {holder['pid']} on {holder['host']} (since {holder['since']})"
+                break
+            except (OSError, ValueError, KeyError, TypeError):
+                time.sleep(0.05)
+        return (
+            f"run folder {self.folder} is in use by the search of {who}; wait for it to end, "
+            f"or start another run (--name {self.name}-2). Several workers share a study "
+            "through --workers, or --storage on several machines"
+        )
+
+    def _remove_if_empty(self, created: Path | None) -> None:
+        """Remove the folders :meth:`make_folder` made, up to ``created``, if still empty."""
+        if created is None:
+            return
+        folder = self.folder
+        while True:
+            try:
+                folder.rmdir()
+            except OSError:
+                return  # something was written after all: keep it
+            if folder == created:
+                return
+            folder = folder.parent
 
     # ------------------------------------------------------------------ settings
 
@@ -198,38 +360,49 @@ class Run:
         RunError
             When the folder holds a search with other settings or another profile.
         """
-        if self.folder.exists() and not self.folder.is_dir():
-            raise RunError(f"run folder {self.folder} exists and is not a folder")
-        resumed = self.recorded_settings() is not None  # also: a foreign file is an error
-        created = now_iso()
-        if resumed:
-            recorded = self.read_json(SETTINGS_FILE)
-            fixed = settings.fixed_json()
-            # the recorded values themselves (a sampler's settings as they were then)
-            found = first_difference({k: recorded.get(k, "<unset>") for k in fixed}, fixed)
-            if found:
-                name, a, b = found
-                raise RunError(
-                    f"run folder {self.folder} holds a search with {name} = {json.dumps(a)}, but "
-                    f"this call asks for {name} = {json.dumps(b)}. {self.new_run_hint()}."
-                )
-            if self.path(PROFILE_FILE).exists():
-                found = first_difference(self.read_json(PROFILE_FILE), profile_dict)
-                if found:
-                    name, a, b = found
-                    raise RunError(
-                        f"run folder {self.folder} was searched for another noise profile "
-                        f"({name} = {json.dumps(a)} there, {json.dumps(b)} now). "
-                        f"{self.new_run_hint()}."
-                    )
-            created = recorded.get("created", created)
+        recorded = self.check_resume(settings, profile_dict)
+        resumed = recorded is not None
+        created = now_iso() if recorded is None else recorded.get("created", now_iso())
         written = {"created": created, "updated": now_iso(), "stillroom_version": stillroom_version()}
         written.update(settings.to_json())
-        self.folder.mkdir(parents=True, exist_ok=True)
+        self.make_folder()
         self.write_json(SETTINGS_FILE, written)
         if not self.path(PROFILE_FILE).exists():
             self.write_json(PROFILE_FILE, profile_dict)
         return written, resumed
+
+    def check_resume(self, settings, profile_dict: dict) -> dict | None:
+        """Read-only: the recorded settings.json of a resumed run (None for a new folder).
+
+        Raises
+        ------
+        RunError
+            When the folder holds a search with other settings or another profile.
+        """
+        if self.folder.exists() and not self.folder.is_dir():
+            raise InputError(f"run folder {self.folder}: exists and is not a folder")
+        if self.recorded_settings() is None:  # also: a foreign file is an error
+            return None
+        recorded = self.read_json(SETTINGS_FILE)
+        fixed = settings.fixed_json()
+        # the recorded values themselves (a sampler's settings as they were then)
+        found = first_difference({k: recorded.get(k, "<unset>") for k in fixed}, fixed)
+        if found:
+            name, a, b = found
+            raise RunError(
+                f"run folder {self.folder} holds a search with {name} = {json.dumps(a)}, but "
+                f"this call asks for {name} = {json.dumps(b)}. {self.new_run_hint()}."
+            )
+        if self.path(PROFILE_FILE).exists():
+            found = first_difference(self.read_json(PROFILE_FILE), profile_dict)
+            if found:
+                name, a, b = found
+                raise RunError(
+                    f"run folder {self.folder} was searched for another noise profile "
+                    f"({name} = {json.dumps(a)} there, {json.dumps(b)} now). "
+                    f"{self.new_run_hint()}."
+                )
+        return recorded
 
     # ------------------------------------------------------------------ front
 

@@ -12,11 +12,16 @@ single-worker run gives the same trials however often it was interrupted.
 from __future__ import annotations
 
 import multiprocessing
+import os
+import signal
+import socket
+import sys
 import time
 from dataclasses import dataclass
 from pathlib import Path
 
 import optuna
+from optuna.trial import TrialState
 
 from .errors import InputError, RunError
 from .front import BaselineResult, baseline_results
@@ -24,9 +29,9 @@ from .tracker import FrontTracker
 from .limits import Limits
 from .objective import Objective
 from .objectives import directions
-from .processes import worker_identity
+from .processes import StopRequest, checkpoint, is_running, parent_alive, worker_identity
 from .progress import SearchProgress
-from .resume import fail_stale_trials, reask_abandoned
+from .resume import fail_stale_trials, reask_abandoned, register_worker, registered_workers
 from .run import Run, load_run, same_values
 from .samplers import SlotSeededSampler, finished_count
 from .seeding import enqueue_known, exhaustive_layer
@@ -101,7 +106,9 @@ def _recorded_storage(spec, run_dir: Path) -> str:
     return spec.describe()
 
 
-def run_search(profile, *, run_dir, settings=None, progress=True, **fields) -> SearchOutcome:
+def run_search(
+    profile, *, run_dir, settings=None, progress=True, on_start=None, **fields
+) -> SearchOutcome:
     """Search recipes for a profile; resumable (run the same call again to go on).
 
     Parameters
@@ -113,11 +120,14 @@ def run_search(profile, *, run_dir, settings=None, progress=True, **fields) -> S
         ``n_trials``, ``timeout_s``, ``seed``, ``sampler``, ``storage``,
         ``workers``, ``objectives``, ``limits``, ``exhaustive_depth``,
         ``target_fidelity``: see :class:`optimise.settings.SearchSettings`).
-        ``n_trials`` is the total of the study, counting earlier runs (it may
-        grow); more than one worker needs a storage they can share (by default a
-        journal file in the run folder).
+        ``n_trials`` is the total of the study, counting earlier runs and every
+        process on a shared storage (it may grow); more than one worker needs a
+        storage they can share (by default a journal file in the run folder).
     progress : bool
         Show a progress bar on stderr.
+    on_start : callable, optional
+        Called with ``resumed`` (bool) once the run folder is owned and its
+        settings written, before the search itself.
 
     Returns
     -------
@@ -126,9 +136,12 @@ def run_search(profile, *, run_dir, settings=None, progress=True, **fields) -> S
     Raises
     ------
     InputError
-        For a setting out of range (naming it and the range).
+        For a setting out of range (naming it and the range), or a storage or run
+        folder that cannot be used (nothing is written then).
     RunError
-        When the run folder holds another search.
+        When the run folder holds another search, or another search owns it now.
+    KeyboardInterrupt
+        After a Ctrl-C, once the study is left resumable.
     """
     started = time.monotonic()
     if settings is None:
@@ -141,17 +154,26 @@ def run_search(profile, *, run_dir, settings=None, progress=True, **fields) -> S
         settings.storage, run.folder, settings.workers, run.recorded_settings(), bar.note
     )
     settings = settings.replace(storage=_recorded_storage(spec, run.folder))
-    recorded, _ = run.prepare(settings, profile.to_dict())
+    run.check_resume(settings, profile.to_dict())  # read-only: refuse before writing anything
     verbosity = optuna.logging.get_verbosity()
     optuna.logging.set_verbosity(optuna.logging.WARNING)
+    stop = StopRequest()
     try:
-        return _search(profile, run, settings, recorded, spec, started, bar)
+        with stop.installed():
+            # a server first: one that cannot be opened leaves no run folder behind
+            storage = open_resolved(spec) if spec.kind == "rdb" else None
+            with run.lock():
+                storage = storage or open_resolved(spec)
+                study = _open_study(storage, spec, run, settings, profile)
+                recorded, resumed = run.prepare(settings, profile.to_dict())
+                if on_start is not None:
+                    on_start(resumed)
+                return _search(profile, run, settings, recorded, study, spec, started, bar, stop)
     finally:
         optuna.logging.set_verbosity(verbosity)
 
 
-def _open_study(spec, run: Run, settings: SearchSettings, profile, worker=0):
-    storage = open_resolved(spec)
+def _open_study(storage, spec, run: Run, settings: SearchSettings, profile, worker=0):
     name = STUDY_PREFIX + run.name
     study = optuna.create_study(
         storage=storage,
@@ -173,29 +195,38 @@ def _open_study(spec, run: Run, settings: SearchSettings, profile, worker=0):
     return study
 
 
-def _search(profile, run: Run, settings: SearchSettings, recorded, spec, started, bar):
-    depth = settings.depth_cap
-    on_depth = None
-    if bar.enabled:
+def budget_used(study) -> int:
+    """Trials that count towards the budget, finished (:func:`finished_count`) or running."""
+    return finished_count(study) + len(
+        study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
+    )
 
-        def on_depth(d, states, evaluations, seconds):
+
+def _search(profile, run: Run, settings, recorded, study, spec, started, bar, stop):
+    depth = settings.depth_cap
+
+    def on_depth(d, states, evaluations, seconds):
+        if bar.enabled:
             bar.note(
                 f"exhaustive layer: depth {d}, {states:,d} distinct states, "
                 f"{evaluations:,d} rounds evaluated in {seconds:.1f} s"
             )
+        checkpoint("exhaustive")
 
-    exhaustive = exhaustive_layer(profile, run, settings, on_depth=on_depth)
-    baselines = baseline_results(profile, settings.max_depth)
-    study = _open_study(spec, run, settings, profile)
+    with stop.interruptible():  # pure computation: a Ctrl-C ends it at once
+        exhaustive = exhaustive_layer(profile, run, settings, on_depth=on_depth)
+        baselines = baseline_results(profile, settings.max_depth)
+    me = worker_identity()
+    register_worker(study, me)  # before any trial is asked: see optimise.resume
     done_before = finished_count(study)  # trials asked again below are this run's work
-    stale = fail_stale_trials(study)
+    stale = fail_stale_trials(study, me)
     asked = reask_abandoned(
         study,
         profile,
         max_depth=depth,
         objectives=settings.objectives,
         limits=settings.limits,
-        worker=worker_identity(),
+        worker=me,
     )
     if stale or asked:
         bar.note(
@@ -203,10 +234,16 @@ def _search(profile, run: Run, settings: SearchSettings, recorded, spec, started
             f"failed; {len(asked)} recipes of interrupted trials evaluated again"
         )
     if finished_count(study) < settings.n_trials:
+
+        def between():
+            checkpoint("enqueue")
+            stop.check()
+
         enqueue_known(
             study,
             [r.notation for r in exhaustive.results] + [b.result.notation for b in baselines],
             depth,
+            between=between,
         )
     complete = exhaustive.complete_depth >= depth and is_linear_space(depth) and exhaustive.complete
     tracker = FrontTracker(
@@ -221,7 +258,6 @@ def _search(profile, run: Run, settings: SearchSettings, recorded, spec, started
     done_now = finished_count(study)
     tracker.add_trials(study.get_trials(deepcopy=False))
     tracker.write(done_now)
-    remaining = max(0, settings.n_trials - done_now)
     timeout_s = settings.timeout_s
     left = None if timeout_s is None else max(0.0, timeout_s - (time.monotonic() - started))
     bar.total, bar.done = settings.n_trials, done_now
@@ -229,15 +265,16 @@ def _search(profile, run: Run, settings: SearchSettings, recorded, spec, started
         bar.deadline = time.monotonic() + (left or 0.0)
     with bar:
         bar.update(done_now, tracker.best_fidelity(), tracker.size())
-        if remaining > 0 and (left is None or left > 0):
+        if budget_used(study) < settings.n_trials and (left is None or left > 0):
             try:
                 if settings.workers == 1:
-                    _optimize_here(study, profile, settings, remaining, left, tracker, bar)
+                    _optimize_here(study, profile, settings, spec, left, tracker, bar, stop)
                 else:
-                    _optimize_workers(spec, run, settings, profile, left, tracker, bar)
+                    _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop)
             finally:
                 tracker.add_trials(study.get_trials(deepcopy=False))
                 tracker.write(finished_count(study))
+    stop.check()
     total = finished_count(study)
     front = tracker.results()
     target = None
@@ -258,38 +295,72 @@ def _search(profile, run: Run, settings: SearchSettings, recorded, spec, started
     )
 
 
-class _BudgetStop:
-    """Stops a worker once the study holds ``n_trials`` finished trials."""
+class _Between:
+    """Called after every trial: stops the process's loop at the budget or when asked.
 
-    def __init__(self, n_trials: int):
+    Parameters
+    ----------
+    n_trials : int
+        The study's budget.
+    shared : bool
+        Other processes may add trials: count the study's finished and running
+        trials after each trial (one process alone needs no recount: optuna's own
+        ``n_trials`` is exact).
+    asked_to_stop : callable () -> bool
+        A Ctrl-C, or (a worker) a stop from the parent or the parent's death.
+    """
+
+    def __init__(self, n_trials: int, shared: bool, asked_to_stop, after=None):
         self.n_trials = n_trials
+        self.shared = shared
+        self.asked_to_stop = asked_to_stop
+        self.after = after
 
     def __call__(self, study, trial):
-        if finished_count(study) >= self.n_trials:
+        checkpoint("trial")
+        if self.after is not None:
+            self.after(study, trial)
+        if self.asked_to_stop() or (self.shared and budget_used(study) >= self.n_trials):
             study.stop()
 
 
-def _objective(profile, settings: SearchSettings) -> Objective:
+def _objective(profile, settings: SearchSettings, shared: bool) -> Objective:
     return Objective(
         profile,
         max_depth=settings.depth_cap,
         objectives=settings.objectives,
         limits=settings.limits,
+        shared=shared,
     )
 
 
-def _optimize_here(study, profile, settings, remaining, left, tracker, bar):
+def worker_offset(study, me: dict) -> int:
+    """Which seeds this process draws from, on a storage shared with other processes.
+
+    The number of other processes registered on the study and not known to be gone
+    (see :mod:`optimise.resume`): a lone process draws as a single worker does (0),
+    so its run is reproducible; processes working at the same time draw apart.
+    """
+    others = registered_workers(study, besides=me)
+    here = socket.gethostname()
+    return sum(1 for w in others if w.get("host") != here or is_running(w))
+
+
+def _optimize_here(study, profile, settings, spec, left, tracker, bar, stop):
+    if spec.shared:
+        offset = worker_offset(study, worker_identity())
+        study.sampler = SlotSeededSampler(settings.sampler_settings, worker=offset)
+
     def after(study, trial):
         if tracker.add_trial(trial):
             tracker.write(None)
         bar.update(bar.done + 1, tracker.best_fidelity(), tracker.size())
 
-    # one process: the remaining count is exact, no need to recount the study per trial
     study.optimize(
-        _objective(profile, settings),
-        n_trials=remaining,
+        _objective(profile, settings, spec.shared),
+        n_trials=max(0, settings.n_trials - budget_used(study)),
         timeout=left,
-        callbacks=[after],
+        callbacks=[_Between(settings.n_trials, spec.shared, lambda: stop.requested, after)],
         catch=(ValueError, ArithmeticError),
     )
 
@@ -304,61 +375,84 @@ class WorkerJob:
     run_dir: str
     worker: int
     timeout_s: float | None
+    parent_pid: int = 0
+    offset: int = 0
 
 
-def worker_main(job: WorkerJob) -> int:
-    """Entry point of a local worker process (see :func:`_optimize_workers`)."""
+def worker_main(job: WorkerJob, stop_event=None) -> int:
+    """Entry point of a local worker process (see :func:`_optimize_workers`).
+
+    The worker stops after its current trial when ``stop_event`` is set or its
+    parent (``job.parent_pid``) is gone.
+    """
     from models.profile import Profile
 
     optuna.logging.set_verbosity(optuna.logging.WARNING)
     profile = Profile.from_dict(job.profile)
     settings = job.settings
-    study = _open_study(job.storage, Run(job.run_dir), settings, profile, worker=job.worker)
-    remaining = settings.n_trials - finished_count(study)
-    if remaining <= 0:
+    run = Run(job.run_dir)
+    worker = job.offset * settings.workers + job.worker
+    study = _open_study(open_resolved(job.storage), job.storage, run, settings, profile, worker)
+    register_worker(study, worker_identity())
+
+    def asked_to_stop():
+        gone = job.parent_pid and not parent_alive(job.parent_pid)
+        return bool(gone or (stop_event is not None and stop_event.is_set()))
+
+    if asked_to_stop() or budget_used(study) >= settings.n_trials:
         return 0
     study.optimize(
-        _objective(profile, settings),
-        n_trials=remaining,
+        _objective(profile, settings, True),
+        n_trials=None,
         timeout=job.timeout_s,
-        callbacks=[_BudgetStop(settings.n_trials)],
+        callbacks=[_Between(settings.n_trials, True, asked_to_stop)],
         catch=(ValueError, ArithmeticError),
     )
     return 0
 
 
-def _worker_entry(job):
+def _worker_entry(job, stop_event):
+    # the parent handles Ctrl-C and tells the workers through stop_event
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     try:
-        worker_main(job)
-    except KeyboardInterrupt:
-        pass
+        worker_main(job, stop_event)
+    except Exception as error:  # one line, the parent reports the exit code
+        print(f"stillroom: worker {job.worker}: {type(error).__name__}: {error}", file=sys.stderr)
+        sys.exit(1)
 
 
-def _optimize_workers(spec, run, settings, profile, left, tracker, bar):
+def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
     context = multiprocessing.get_context("spawn")
+    stop_event = context.Event()
+    monitor = _open_study(open_resolved(spec), spec, run, settings, profile)
+    offset = worker_offset(monitor, worker_identity())
     jobs = [
-        WorkerJob(settings, profile.to_dict(), spec, str(run.folder), i, left)
+        WorkerJob(settings, profile.to_dict(), spec, str(run.folder), i, left, os.getpid(), offset)
         for i in range(settings.workers)
     ]
-    processes = [context.Process(target=_worker_entry, args=(job,), daemon=False) for job in jobs]
+    processes = [
+        context.Process(target=_worker_entry, args=(job, stop_event), daemon=False) for job in jobs
+    ]
     for p in processes:
         p.start()
-    monitor = _open_study(spec, run, settings, profile)
     try:
         while any(p.is_alive() for p in processes):
+            if stop.requested:
+                stop_event.set()  # each worker ends its trial, then stops
             for p in processes:
                 p.join(timeout=POLL_S / len(processes))
             trials = monitor.get_trials(deepcopy=False)
             if tracker.add_trials(trials):
                 tracker.write(None)
             bar.update(finished_count(monitor), tracker.best_fidelity(), tracker.size())
-    except KeyboardInterrupt:
+    finally:
+        stop_event.set()
         for p in processes:
-            p.join(timeout=10)  # the workers got the same Ctrl-C and fail their trials
+            p.join(timeout=30)
         for p in processes:
             if p.is_alive():
                 p.terminate()
-        raise
+    stop.check()
     failed = [p.exitcode for p in processes if p.exitcode not in (0, None)]
     if failed:
         raise RunError(

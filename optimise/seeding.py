@@ -54,8 +54,11 @@ def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
     return front
 
 
-def enqueue_known(study, notations, max_depth: int) -> int:
-    """Enqueue recipes (skipping those already in the study); returns how many were new."""
+def enqueue_known(study, notations, max_depth: int, between=None) -> int:
+    """Enqueue recipes (skipping those already in the study); returns how many were new.
+
+    ``between``, if given, is called after each recipe enqueued (a place to stop).
+    """
     seen, count = set(), 0
     before = len(study.get_trials(deepcopy=False))
     for notation in notations:
@@ -68,4 +71,6 @@ def enqueue_known(study, notations, max_depth: int) -> int:
         seen.add(key)
         study.enqueue_trial(params, skip_if_exists=True)
         count += 1
+        if between is not None:
+            between()
     return len(study.get_trials(deepcopy=False)) - before if count else 0

@@ -19,9 +19,9 @@ from pathlib import Path
 
 from .errors import InputError, user_input
 from .files import write_atomic, write_json_atomic
+from .labels import baseline_label, fmt_fidelity, fmt_number
 from .profiles import PARAMETERS, with_parameter
-from .labels import fmt_fidelity, fmt_number
-from .reports import ASSUMPTIONS
+from .reports import ASSUMPTIONS, _now, _version, profile_sentence
 
 CSV_COLUMNS = (
     "value",
@@ -89,6 +89,7 @@ def run_sweep(
     limits=None,
     n_jobs: int = 1,
     log_scale: bool = False,
+    recipes=(),
     progress=None,
 ) -> dict:
     """Evaluate the sweep; returns the document that :func:`write_sweep` writes.
@@ -105,10 +106,14 @@ def run_sweep(
     depth : int
         Every linear recipe with up to ``depth`` rounds is evaluated.
     limits : optimise.search.Limits or None
+    recipes : sequence of (str, models.Recipe)
+        Recipes (or baselines) to follow across the sweep, each with the label
+        the user gave it; their figures at each value go to ``point["recipes"]``.
     progress : rich Console or None
         Prints one line per value when given.
     """
     from models import hashing_yield
+    from models.evaluate import evaluate
 
     from .exhaustive import exhaustive_front
     from .targets import cheapest_reaching
@@ -136,6 +141,8 @@ def run_sweep(
                 "front_size": len(results),
                 "best": best.to_dict(),
                 "targets": [a.to_dict() for a in answers],
+                "baselines": baseline_figures(profile, depth, targets, limits),
+                "recipes": [evaluate(recipe, profile).to_dict() for _, recipe in recipes],
             }
         )
         if progress is not None:
@@ -157,8 +164,41 @@ def run_sweep(
         "searched_space": space,
         "complete": complete,
         "points": points,
+        "recipes": [{"label": label, "recipe": recipe.notation} for label, recipe in recipes],
+        "stillroom_version": _version(),
+        "created": _now(),
         "assumptions": ASSUMPTIONS,
     }
+
+
+def baseline_figures(profile, depth: int, targets, limits) -> dict:
+    """The textbook baselines at one sweep value, at the sweep's depths (1 to ``depth``).
+
+    ``best``: per baseline, its depth of highest fidelity; ``targets``: per target,
+    the cheapest baseline reaching it within the limits (None when none does).
+    """
+    from .front import baseline_results
+    from .targets import cheapest_reaching
+
+    every = baseline_results(profile, depth)
+    best = {}
+    for b in every:
+        if b.name not in best or b.result.fidelity > best[b.name].result.fidelity:
+            best[b.name] = b
+    by_result = {id(b.result): b for b in every}
+    cheapest = []
+    for t in targets:
+        try:
+            answer = cheapest_reaching([b.result for b in every], t, limits)
+        except ValueError:  # no baseline within the limits
+            answer = None
+        pick = None if answer is None or answer.recipe is None else by_result[id(answer.recipe)]
+        cheapest.append(None if pick is None else _baseline_entry(pick))
+    return {"best": [_baseline_entry(b) for b in best.values()], "targets": cheapest}
+
+
+def _baseline_entry(b) -> dict:
+    return {**b.result.to_dict(), "baseline": b.name, "depth": b.depth}
 
 
 def sweep_csv(document: dict) -> str:
@@ -204,18 +244,37 @@ def _target_cell(answer: dict) -> str:
 
 
 def _headers(document: dict) -> list[str]:
-    return [document["parameter"], "raw F", "highest F", "recipe"] + [
-        f"cheapest F >= {t:g}" for t in document["targets"]
-    ]
+    headers = [document["parameter"], "raw F", "highest F", "recipe", "best baseline"]
+    for t in document["targets"]:
+        headers += [f"cheapest F >= {t:g}", f"cheapest baseline F >= {t:g}"]
+    return headers + [f"F of {r['label']}" for r in document.get("recipes", [])]
+
+
+def _baseline_cell(entry, figure: str) -> str:
+    if entry is None:
+        return "none reaches it"
+    label = baseline_label(entry["baseline"], entry["depth"])
+    if figure == "fidelity":
+        return f"{label} ({fmt_fidelity(entry['fidelity'])})"
+    return f"{label} (yield {fmt_number(entry['yield'])})"
 
 
 def _row(point: dict) -> list[str]:
-    return [
+    baselines = point.get("baselines", {"best": [], "targets": [None] * len(point["targets"])})
+    best = max(baselines["best"], key=lambda b: b["fidelity"], default=None)
+    cells = [
         f"{point['value']:g}",
         fmt_fidelity(point["raw_fidelity"]),
         fmt_fidelity(point["best"]["fidelity"]),
         point["best"]["recipe"],
-    ] + [_target_cell(a) for a in point["targets"]]
+        _baseline_cell(best, "fidelity"),
+    ]
+    for answer, theirs in zip(point["targets"], baselines["targets"], strict=True):
+        cells += [_target_cell(answer), _baseline_cell(theirs, "yield")]
+    return cells + [
+        f"{fmt_fidelity(r['fidelity'])} (yield {fmt_number(r['yield'])})"
+        for r in point.get("recipes", [])
+    ]
 
 
 def sweep_md(document: dict) -> str:
@@ -233,8 +292,31 @@ def sweep_md(document: dict) -> str:
         cells = _row(point)
         cells[3] = f"`{cells[3]}`"
         lines.append("| " + " | ".join(cells) + " |")
-    lines += ["", ASSUMPTIONS, ""]
+    lines += ["", " ".join(sweep_provenance(document)), "", ASSUMPTIONS, ""]
     return "\n".join(lines)
+
+
+def sweep_provenance(document: dict) -> list[str]:
+    """Where a sweep's figures come from: profile, version, date, the space, completeness."""
+    profile = dict(document["profile"])
+    lines = [
+        profile_sentence(profile).rstrip(".")
+        + f", with {document['parameter']} swept over "
+        + ", ".join(f"{v:g}" for v in document["values"])
+        + ".",
+        f"stillroom {document.get('stillroom_version', 'unknown')}; computed "
+        f"{document.get('created', 'unknown')}; no seed (every recipe evaluated, nothing sampled).",
+    ]
+    space = document.get("searched_space")
+    if isinstance(space, str):
+        lines.append(f"Searched: {space}.")
+    lines.append(
+        "Completeness: the front is complete for that space at every value."
+        if document["complete"]
+        else "Completeness: not proven at every value (an evaluation cap was reached)."
+    )
+    lines.append(f"Baselines at depths 1 to {document['depth']}, the same depths as the search.")
+    return lines
 
 
 def rich_table(document: dict):

@@ -6,21 +6,23 @@ command is one module of this package, its parser beside its handler
 module listed in :data:`COMMANDS`. Commands import what they need only when they
 run, so ``stillroom --help`` starts instantly. A user's error (a
 :class:`optimise.errors.StillroomError`, or a file that cannot be read or
-written) prints one line on stderr and returns exit code 2.
+written) prints one line on stderr and returns exit code 2; so does a command
+line that cannot be read (:class:`optimise.cli.common.Parser`), before anything
+is written or printed. A fault of the machine (a full disk, an I/O error) is one
+line and exit code 1.
 """
 
 from __future__ import annotations
 
-import argparse
 import sys
 
-from . import evaluate, profile, search, sweep, table, verify
-from .common import Formatter, parse_duration
+from . import compare, evaluate, profile, search, sweep, table, verify
+from .common import Formatter, Parser, UsageError, parse_duration
 from .evaluate import RECIPE_HELP, resolve_recipe
 
 __all__ = ["main", "build_parser", "parse_duration", "resolve_recipe", "RECIPE_HELP"]
 
-COMMANDS = (profile, search, evaluate, sweep, table, verify)
+COMMANDS = (profile, search, evaluate, compare, sweep, table, verify)
 
 MAIN_HELP = """\
 Search entanglement-purification recipes for noisy Bell pairs.
@@ -42,12 +44,15 @@ start here:
   stillroom table runs/<name> --format tex
 
 Every command takes --json for machine-readable output (keys documented in
-optimise/schema.json). Exit codes: 0 success, 2 bad input, 130 interrupted.
+optimise/schema.json). Exit codes: 0 success, 1 a fault of the machine (disk
+full, I/O error), 2 bad input (one line on stderr), 130 interrupted.
 """
 
+MACHINE_FAULTS = ("ENOSPC", "EDQUOT", "EIO", "ENOMEM", "EFBIG")
 
-def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+
+def build_parser() -> Parser:
+    parser = Parser(
         prog="stillroom", description=MAIN_HELP, epilog=MAIN_EPILOG, formatter_class=Formatter
     )
     parser.add_argument("--version", action="version", version=f"stillroom {_version()}")
@@ -74,18 +79,27 @@ def main(argv=None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
-    except SystemExit as done:  # --help, --version, or a usage error (code 2)
+    except SystemExit as done:  # --help, --version
         return int(done.code or 0)
+    except UsageError as error:
+        print(error, file=sys.stderr)
+        return 2
     if getattr(args, "handler", None) is None:
-        parser.print_help()
-        return 0
+        parser.print_help(sys.stderr)
+        return 2
+    import errno
+
     from ..errors import StillroomError, user_message
 
     try:
         return args.handler(args)
     except (StillroomError, OSError) as error:
         print(user_message(error), file=sys.stderr)
-        return 2
+        diagram = getattr(error.__cause__, "diagram", None)
+        if getattr(args, "verbose", False) and diagram:
+            print(diagram, file=sys.stderr)
+        code = errno.errorcode.get(getattr(error, "errno", None) or 0)
+        return 1 if code in MACHINE_FAULTS else 2
     except KeyboardInterrupt:
         print(search.INTERRUPTED if args.command == search.NAME else "interrupted", file=sys.stderr)
         return 130

@@ -15,6 +15,35 @@ import sys
 DEFAULT_RUNS_DIR = "runs"
 
 
+class UsageError(Exception):
+    """A command line argparse could not read: one line, exit code 2 (see :class:`Parser`)."""
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse, with one line for an error and negative-looking values read as values.
+
+    An error raises :class:`UsageError` (``stillroom search: argument --trials: ...``)
+    instead of printing the usage block and exiting, so that :func:`optimise.cli.main`
+    prints one line. A value such as ``-5s`` after an option is read as that
+    option's value (and then refused by its type with the reason), not taken for an
+    unknown option: no stillroom option starts with a digit.
+    """
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        self._negative_number_matcher = re.compile(r"^-\d")
+
+    def error(self, message):
+        raise UsageError(f"{self.prog}: {clip(' '.join(message.split()))}")
+
+
+def clip(text: str, most: int = 300) -> str:
+    """``text`` cut in the middle to at most about ``most`` characters (a value pasted huge)."""
+    if len(text) <= most:
+        return text
+    return f"{text[: most // 2]}...[{len(text) - most} characters]...{text[-most // 2 :]}"
+
+
 class Formatter(argparse.RawDescriptionHelpFormatter):
     """Keeps the epilogs' examples as written (descriptions are wrapped by :func:`wrap`)."""
 
@@ -29,12 +58,17 @@ def wrap(text: str) -> str:
 
 
 def json_flag() -> argparse.ArgumentParser:
-    """The ``--json`` option every command takes (a parent parser)."""
+    """The ``--json`` and ``--verbose`` options every command takes (a parent parser)."""
     parent = argparse.ArgumentParser(add_help=False)
     parent.add_argument(
         "--json",
         action="store_true",
         help="print machine-readable JSON on stdout (see schema.json)",
+    )
+    parent.add_argument(
+        "--verbose",
+        action="store_true",
+        help="on an error in a recipe string, also show where it is (a caret under it)",
     )
     return parent
 
@@ -57,14 +91,18 @@ def parse_duration(text: str) -> float:
         match = re.fullmatch(
             r"(?:(\d+(?:\.\d*)?)h)?\s*(?:(\d+(?:\.\d*)?)m)?\s*(?:(\d+(?:\.\d*)?)s)?", text
         )
+        if text.startswith("-"):
+            raise argparse.ArgumentTypeError(f"{clip(text, 60)!r}: a time must be positive")
         if not text or not match or not any(match.groups()):
             raise argparse.ArgumentTypeError(
-                f"{text!r} is not a duration; write e.g. 90s, 10m, 2h or 1h30m"
+                f"{clip(text, 60)!r} is not a duration; write e.g. 90s, 10m, 2h or 1h30m"
             ) from None
         h, m, s = (float(g) if g else 0.0 for g in match.groups())
         seconds = 3600 * h + 60 * m + s
     if not seconds > 0 or math.isinf(seconds):
-        raise argparse.ArgumentTypeError(f"{text!r}: a time budget must be positive and finite")
+        raise argparse.ArgumentTypeError(
+            f"{clip(text, 60)!r}: a time budget must be positive and finite"
+        )
     return seconds
 
 
@@ -72,7 +110,7 @@ def fidelity(text: str) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        raise argparse.ArgumentTypeError(f"{clip(text, 60)!r} is not a number") from None
     if not 0.5 < value < 1.0:
         raise argparse.ArgumentTypeError(
             f"{text} is outside (0.5, 1); a target is an output fidelity below 1"
@@ -84,20 +122,27 @@ def fidelities(text: str) -> list[float]:
     return [fidelity(part) for part in text.split(",") if part.strip()]
 
 
-def whole_number_at_least(low: int):
+def whole_number_at_least(low: int, high: int | None = None):
     def parse(text: str) -> int:
         try:
-            value = int(text)
+            value = int(text) if len(text) <= 30 else None
         except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-        if value < low:
-            raise argparse.ArgumentTypeError(f"{value} must be at least {low}")
+            value = None
+        if value is None:
+            raise argparse.ArgumentTypeError(f"{clip(repr(text), 60)} is not a whole number")
+        if value < low or (high is not None and value > high):
+            span = f"at least {low}" if high is None else f"in [{low}, {high}]"
+            raise argparse.ArgumentTypeError(f"{value} must be {span}")
         return value
 
     return parse
 
 
 positive_int = whole_number_at_least(1)
+# outputs a re-simulation samples: enough for a 1e-5 standard error on a fidelity,
+# and a bound, so that a mistyped count cannot run for days
+MAX_SAMPLES = 10_000_000
+sample_count = whole_number_at_least(2, MAX_SAMPLES)
 non_negative_int = whole_number_at_least(0)
 
 
@@ -106,7 +151,7 @@ def seconds(text: str) -> float:
         return parse_duration(text)
     except argparse.ArgumentTypeError:
         raise argparse.ArgumentTypeError(
-            f"{text!r} is not a time; write seconds, e.g. 0.02 or 1.5"
+            f"{clip(text, 60)!r} is not a time; write seconds, e.g. 0.02 or 1.5"
         ) from None
 
 
@@ -153,8 +198,26 @@ def add_profile_argument(p) -> None:
     )
 
 
+def folder(text: str) -> str:
+    """A folder path that is not empty."""
+    if not text.strip():
+        raise argparse.ArgumentTypeError("an empty path; name a folder (default: runs)")
+    return text
+
+
+def run_name(text: str) -> str:
+    """A run name: one safe folder name (:func:`optimise.run.check_run_name`)."""
+    from ..errors import InputError
+    from ..run import check_run_name
+
+    try:
+        return check_run_name(text)
+    except InputError as error:
+        raise argparse.ArgumentTypeError(str(error)) from None
+
+
 def add_runs_dir(p, help: str) -> None:
-    p.add_argument("--runs-dir", default=DEFAULT_RUNS_DIR, metavar="DIR", help=help)
+    p.add_argument("--runs-dir", type=folder, default=DEFAULT_RUNS_DIR, metavar="DIR", help=help)
 
 
 # ----------------------------------------------------------------------------- output
@@ -165,7 +228,16 @@ def count(n: int, noun: str) -> str:
 
 
 def slug(name: str) -> str:
-    text = re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-.")
+    """A run name from a profile's name (always a valid one).
+
+    Examples
+    --------
+    >>> slug("../My lab: 30 km"), slug("..."), len(slug("x" * 300))
+    ('My-lab-30-km', 'profile', 100)
+    """
+    from ..run import MAX_NAME_LENGTH
+
+    text = re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-._")[:MAX_NAME_LENGTH].rstrip("-.")
     return text or "profile"
 
 

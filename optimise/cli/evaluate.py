@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from ..labels import fmt_fidelity, fmt_number, fmt_time
 from . import common
 
 NAME = "evaluate"
@@ -22,6 +23,9 @@ recipe strings: rounds joined by '.', applied left to right to a raw pair.
   e.g. sY^3, sZ~^2, pY^4, pZ.pX.pZ.pX, 'sY^2.pY(sY)' (quote parentheses)
 A textbook baseline may be given as NAME:DEPTH, e.g. dejmps:3 (names: bbpssw,
 dejmps, pumping, alternating-pumping, double-selection-pumping).
+Limits (models.notation.LIMITS_SENTENCE): a recipe has at most 64 rounds in all
+(sources included), a repeat count of at most 64, sources nested at most 8 deep
+and at most 1000 characters.
 """
 
 
@@ -33,9 +37,10 @@ def add_parser(sub, parents) -> None:
         help="exact figures of one recipe, round by round",
         description=common.wrap(
             "Evaluate one recipe exactly on PROFILE (default: the built-in demo) and "
-            "print, after each round of its main chain: the Bell weights, fidelity, success "
-            "probability, raw pairs per output so far, memory qubits per node and time per "
-            "output pair."
+            "print every step in the order it happens (the steps of a sub-recipe before the "
+            "round that uses it): the Bell weights, fidelity and success probability, with "
+            "the error weights the check removed and the infidelity that gates, measurements "
+            "and memory added; then the cost, memory and time of the main chain round by round."
         ),
         epilog=RECIPE_HELP + "\nexamples:\n  stillroom evaluate sY^3\n"
         "  stillroom evaluate pX.pY.pX mine.toml\n  stillroom evaluate dejmps:4 mine.toml --json",
@@ -52,6 +57,13 @@ def resolve_recipe(text: str):
 
     from ..errors import user_input
 
+    if text.lower().endswith(".toml"):
+        from ..errors import InputError
+
+        raise InputError(
+            f"{text!r} is a profile, not a recipe: the recipe comes first "
+            "(stillroom evaluate RECIPE [PROFILE])"
+        )
     with user_input():
         if ":" in text:
             name, _, depth = text.partition(":")
@@ -64,83 +76,125 @@ def run(args) -> int:
     profile, label = common.profile_or_demo(args.profile)
     recipe = resolve_recipe(args.recipe)
     from models.evaluate import evaluate
-    from models.notation import canonical, format_recipe
-    from models.recipes import Recipe
 
     from ..errors import user_input
+    from ..explain import explain
 
     with user_input():
         result = evaluate(recipe, profile)
+        stories = explain(recipe, profile)
     trace = [_round_dict(i, r) for i, r in enumerate(result.trace, 1)]
+    written = spelling(args.recipe, recipe)
     if args.json:
         common.print_json(
             {
                 "kind": "evaluate",
                 "profile_source": label,
                 "profile": profile.to_dict(),
+                "written": written,
                 "result": result.to_dict(),
                 "trace": trace,
+                "steps": [_step_dict(story) for story in stories],
             }
         )
         return 0
-    from rich.table import Table
-
-    from models.states import BELL_NAMES
-
-    from ..labels import fmt_fidelity, fmt_number, fmt_time
-
     out = common.console()
     out.print(common.bold(result.notation, f"  id {result.recipe_id}  on {label}"))
-    table = Table(box=None, header_style="bold", pad_edge=False)
-    for name, justify in (
-        ("round", "right"),
-        ("step", "left"),
-        ("state " + "/".join(BELL_NAMES), "left"),
-        ("fidelity F", "right"),
-        ("success", "right"),
-        ("raw pairs / out", "right"),
-        ("mem / node", "right"),
-        ("time / out", "right"),
-    ):
-        table.add_column(name, justify=justify)
-    written = canonical(recipe)
-    # the raw pair as the recipe uses it (twirled where it says so): figures and wait from the model
-    raw = evaluate(Recipe((), raw_twirl=written.raw_twirl), profile)
-    table.add_row(
-        "0",
-        "raw pair, twirled (~)" if written.raw_twirl else "raw pair",
-        _weights(raw.bell),
-        fmt_fidelity(raw.fidelity),
-        "",
-        fmt_number(raw.raw_pairs_per_output, 6),
-        str(raw.memory_per_node),
-        fmt_time(raw.time_per_output_s),
-    )
-    steps = [format_recipe(Recipe((r,))) for r in written.rounds]
-    for row, step in zip(trace, steps, strict=True):
-        table.add_row(
-            str(row["round"]),
-            step,
-            _weights(row["bell"]),
-            fmt_fidelity(row["fidelity"]),
-            f"{row['success_probability']:.6f}",
-            fmt_number(row["raw_pairs_per_output"], 6),
-            str(row["memory_per_node"]),
-            fmt_time(row["time_per_output_s"]),
+    if written != result.notation or ":" in args.recipe:
+        from ..rows import why_canonical
+
+        built = f", built as {written}" if ":" in args.recipe else ""
+        same = written == result.notation
+        out.print(
+            f"as written: {args.recipe}{built}"
+            + (
+                ""
+                if same
+                else f"; canonical form {result.notation}: "
+                + why_canonical(written, result.notation)
+            )
         )
-    out.print(table)
+    print_trace(out, recipe, profile, stories)
     out.print(
         f"output: F = {result.fidelity:.6f}, yield {result.pair_yield:.6g} output pairs per "
         f"raw pair, {result.memory_per_node} memory qubits per node, "
         f"{fmt_time(result.time_per_output_s)} per output pair"
     )
-    if len(result.success_probabilities) != len(result.trace):
-        out.print(
-            "success probability of every step, in the order they happen: "
-            + ", ".join(f"{p:.6f}" for p in result.success_probabilities)
-        )
     common.print_assumptions(out)
     return 0
+
+
+def spelling(text: str, recipe) -> str:
+    """The recipe as the user wrote it: their string, or a baseline's recipe as built."""
+    from models.formatting import format_recipe
+
+    return format_recipe(recipe) if ":" in text else text
+
+
+def print_trace(out, recipe, profile, stories) -> None:
+    """The raw pair, then every step in the order it happens, with why it helps or hurts."""
+    from rich.table import Table
+
+    from models.evaluate import evaluate
+    from models.notation import canonical
+    from models.recipes import Recipe
+    from models.states import BELL_NAMES
+
+    written = canonical(recipe)
+    # the raw pair as the recipe uses it (twirled where it says so)
+    raw = evaluate(Recipe((), raw_twirl=written.raw_twirl), profile)
+    name = "raw pair" + (", twirled (~)" if written.raw_twirl else "")
+    out.print(
+        f"{name}: F = {fmt_fidelity(raw.fidelity)}   {'/'.join(BELL_NAMES)} = {_weights(raw.bell)}"
+    )
+    for story in stories:
+        indent = "  " * story.depth
+        out.print(
+            f"{indent}{story.label}  {story.step}: F = {fmt_fidelity(story.fidelity)} "
+            f"({story.fidelity - story.fidelity_in:+.4f}), success P = "
+            f"{story.success_probability:.6f}, state {_weights(story.bell)}"
+        )
+        out.print(f"{indent}    {story.sentence()}", style="dim")
+    result = evaluate(recipe, profile)
+    costs = Table(
+        box=None,
+        header_style="bold",
+        pad_edge=False,
+        title="main chain, round by round (cumulative)",
+        title_justify="left",
+    )
+    for column in ("round", "fidelity F", "raw pairs / out", "mem / node", "time / out"):
+        costs.add_column(column, justify="right")
+    costs.add_row(
+        "0",
+        fmt_fidelity(raw.fidelity),
+        fmt_number(raw.raw_pairs_per_output, 6),
+        str(raw.memory_per_node),
+        fmt_time(raw.time_per_output_s),
+    )
+    for i, figures in enumerate(result.trace, 1):
+        costs.add_row(
+            str(i),
+            fmt_fidelity(figures.fidelity),
+            fmt_number(figures.raw_pairs_per_output, 6),
+            str(figures.memory_per_node),
+            fmt_time(figures.time_per_output_s),
+        )
+    out.print()
+    out.print(costs)
+
+
+def _step_dict(story) -> dict:
+    return {
+        "step": story.label,
+        "round": story.step,
+        "bell": [float(w) for w in story.bell],
+        "fidelity": float(story.fidelity),
+        "success_probability": float(story.success_probability),
+        "removed": {k: float(w) for k, w in zip("XYZ", story.removed, strict=True)},
+        "gate_noise": float(story.gate_noise),
+        "memory_noise": float(story.memory_noise),
+    }
 
 
 def _round_dict(i: int, figures) -> dict:

@@ -25,6 +25,7 @@ def add_parser(sub, parents) -> None:
         epilog="parameters: werner_fidelity (replaces the raw pair by a Werner pair),\n"
         "  two_qubit, single_qubit, measurement, t1_s, t2_s, length_km, pair_rate_hz\n\n"
         "examples:\n  stillroom sweep two_qubit 0.97 1 --targets 0.99,0.995\n"
+        "  stillroom sweep measurement 0.98 1 --recipe dejmps:2 --recipe 'dpZ.dpX'\n"
         "  stillroom sweep t2_s 0.01 10 mine.toml --log --steps 9",
     )
     p.add_argument("parameter", metavar="PARAM", help="profile key to vary")
@@ -56,6 +57,14 @@ def add_parser(sub, parents) -> None:
     )
     common.add_limit_options(p)
     p.add_argument(
+        "--recipe",
+        action="append",
+        default=[],
+        metavar="RECIPE",
+        help="also follow this recipe, or a baseline as NAME:DEPTH, across the sweep "
+        "(a sensitivity curve); repeat for several",
+    )
+    p.add_argument(
         "--workers",
         type=common.positive_int,
         default=1,
@@ -73,7 +82,9 @@ def add_parser(sub, parents) -> None:
 def run(args) -> int:
     profile, label = common.profile_or_demo(args.profile)
     from .. import sweep as sweeping
+    from .evaluate import resolve_recipe
 
+    followed = [(text, resolve_recipe(text)) for text in args.recipe]
     values = sweeping.sweep_values(args.start, args.stop, args.steps, log=args.log)
     profiles = sweeping.sweep_profiles(profile, args.parameter, values)
     out_dir = (
@@ -92,6 +103,7 @@ def run(args) -> int:
             limits=common.limits(args),
             n_jobs=args.workers,
             log_scale=args.log,
+            recipes=followed,
             progress=None if (args.json or args.no_progress) else progress,
         )
     except KeyboardInterrupt:

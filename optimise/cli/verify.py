@@ -35,7 +35,7 @@ def add_parser(sub, parents) -> None:
     common.add_profile_argument(p)
     p.add_argument(
         "--samples",
-        type=common.whole_number_at_least(2),
+        type=common.sample_count,
         default=2000,
         metavar="N",
         help="outputs sampled where waits are random (default: %(default)s)",

@@ -16,7 +16,7 @@ from cli_support import REPO, files_under, png_size, run_cli, svg_size, validate
 
 from optimise.cli import main, parse_duration
 from optimise.plots import PNG_PIXELS, SVG_POINTS
-from optimise.reports import ASSUMPTIONS, CSV_COLUMNS, REPORT_FILES, latex_escape
+from optimise.reports import ASSUMPTIONS, CSV_COLUMNS, REPORT_FILES
 
 SMALL = ("--depth", "3", "--trials", "20", "--no-progress")
 RUN_FILES = ("settings.json", "profile.json", "front.json", "study.db")
@@ -82,7 +82,10 @@ def test_bad_options_exit_2_and_write_nothing(tmp_path, monkeypatch, capsys, arg
 def test_bad_recipe_points_at_the_error(capsys):
     assert main(["evaluate", "sY.q"]) == 2
     err = capsys.readouterr().err
-    assert err.startswith("stillroom: ") and "^" in err and "Traceback" not in err
+    assert err.startswith("stillroom: ") and "column 4" in err and err.count("\n") == 1
+    assert main(["evaluate", "sY.q", "--verbose"]) == 2  # the caret diagram on request
+    err = capsys.readouterr().err
+    assert err.splitlines()[1:] == ["  sY.q", "     ^"] and "Traceback" not in err
 
 
 def test_unknown_baseline_suggests_a_name(capsys):
@@ -217,9 +220,12 @@ def test_demo_search_reports(demo_run):
     assert not stack
     body = tex.split(r"\midrule")[1]
     rows_tex = [line for line in body.splitlines() if line.rstrip().endswith(r"\\")]
-    assert len(rows_tex) == len(document["front"])
-    for line, entry in zip(rows_tex, document["front"], strict=True):
-        assert latex_escape(entry["recipe"]) in line
+    # the table shows --top rows covering the front (default 10), its two ends included
+    assert len(rows_tex) == min(len(document["front"]), 10)
+    fidelities = [f"{entry['fidelity']:.6f}" for entry in document["front"]]
+    assert fidelities[0] in rows_tex[0] and fidelities[-1] in rows_tex[-1]
+    for line in rows_tex:
+        assert any(f in line for f in fidelities), line
     assert png_size(run_dir / "front.png") == PNG_PIXELS
     assert svg_size(run_dir / "front.svg") == pytest.approx(SVG_POINTS)
 

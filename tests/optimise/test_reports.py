@@ -21,13 +21,13 @@ from cli_support import REPO, png_size, svg_size, validate
 from optimise.cli import build_parser, main
 from optimise.errors import RunError
 from optimise.files import write_json_atomic
+from optimise.latex import latex_escape
 from optimise.plots import PNG_PIXELS, SVG_POINTS
 from optimise.profiles import demo_profile
 from optimise.reports import (
     ASSUMPTIONS,
     CSV_COLUMNS,
     REPORT_FILES,
-    latex_escape,
     raw_hashing_yield,
     write_reports,
 )
@@ -41,7 +41,8 @@ def make_run(folder: Path, complete: bool = False) -> dict:
     from optimise.pareto import pareto_mask
 
     profile = demo_profile()
-    results = [evaluate(r, profile) for r in CANDIDATES]
+    # spellings with one canonical form (pY and sY) are one recipe, listed once as on a real front
+    results = list({r.recipe_id: r for r in (evaluate(t, profile) for t in CANDIDATES)}.values())
     mask = pareto_mask([[r.fidelity, r.pair_yield] for r in results], (True, True))
     front = sorted(
         (r for r, keep in zip(results, mask, strict=True) if keep), key=lambda r: -r.fidelity

@@ -1,18 +1,18 @@
 """Interrupted searches resume: no finished trial lost, none repeated, same result.
 
 The reference is the same search run without interruption (same seed); the
-interruptions are a real SIGKILL of a search running in another process (the
-storage polled until trials are done and one is running) and a Ctrl-C
-(KeyboardInterrupt) inside a trial.
+interruptions are a real SIGKILL or SIGINT that the search process sends itself
+at a chosen point (a test-only hook, :func:`optimise.processes.checkpoint`), and a
+Ctrl-C (KeyboardInterrupt) inside a trial.
 """
 
 import datetime
+import re
 import os
 import signal
 import socket
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import optuna
@@ -23,6 +23,8 @@ import optimise.objective
 from models.noise import NodeNoise
 from models.profile import Profile
 from models.states import werner
+from optimise.processes import TEST_KILL_ENV
+from optimise.profiles import profile_to_toml
 from optimise.resume import is_stale
 from optimise.search import load_run, run_search
 from optimise.space import recipe_from_params
@@ -36,38 +38,9 @@ PROFILE = Profile(
 # generation (population 40) starts at trial 40, so crossover runs after the kill too
 ARGS = dict(max_depth=3, n_trials=60, exhaustive_depth=1, seed=3, progress=False)
 
-CHILD = """
-import sys, time
-import optimise.objective as objective
-from models.noise import NodeNoise
-from models.profile import Profile
-from models.states import werner
-from optimise.search import run_search
-
-evaluate = objective.evaluate
-def slow(recipe, profile):  # a slow trial, so that the kill lands inside one
-    time.sleep(0.15)
-    return evaluate(recipe, profile)
-objective.evaluate = slow
-noise = NodeNoise(two_qubit=0.98, single_qubit=0.99, measurement=0.98)
-profile = Profile(tuple(werner(0.8)), noise)
-run_search(profile, run_dir=sys.argv[1], max_depth=3, n_trials=60, exhaustive_depth=1, seed=3,
-           progress=False)
-"""
-
-
 def trials_of(run_dir):
     storage = open_storage(None, run_dir)
     return optuna.load_study(study_name=f"stillroom-{run_dir.name}", storage=storage).trials
-
-
-def drawn(trial):
-    """Whether a trial's whole recipe has been drawn (it is then inside its evaluation)."""
-    try:
-        recipe_from_params(trial.params, 3)
-    except (KeyError, ValueError):
-        return False
-    return True
 
 
 def complete_sequence(trials):
@@ -83,57 +56,131 @@ def reference(tmp_path_factory):
     return out, trials_of(run_dir)
 
 
-@pytest.mark.slow
-def test_killed_search_resumes_to_the_uninterrupted_result(tmp_path, reference):
-    ref_out, ref_trials = reference
-    run_dir = tmp_path / "killed"
+# Kill moments: the process signals itself at a named point (optimise.processes.checkpoint,
+# STILLROOM_TEST_KILL_AT=PHASE:N[:INT]), so no test races a signal against progress. Writes
+# of a run folder, in order: settings.json (1), profile.json (2), exhaustive.json (3), then
+# front.json as the front changes; after the search, the command line writes the reports.
+KILL_MOMENTS = [
+    "exhaustive:1",  # inside the exhaustive layer, before its cache is written
+    "write:1",  # writing settings.json
+    "write:3",  # writing exhaustive.json
+    "enqueue:1",  # seeding the study: first recipe enqueued
+    "enqueue:9",
+    "ask:1",  # an enqueued trial just started, before its worker is recorded on it
+    "ask:45",  # a sampled trial, before its recipe is drawn
+    "trial:1",  # a trial just finished
+    "trial:30",
+    "trial:59",
+    "write:12",  # a front.json while trials run
+    "exhaustive:1:INT",  # Ctrl-C: exit 130, one line, then the same command resumes
+    "enqueue:4:INT",
+    "ask:20:INT",
+]
+SEARCH = ["--depth", "3", "--trials", "60", "--exhaustive-depth", "1", "--seed", "3"]
+SEARCH += ["--no-progress"]
+
+
+def search_args(folder, name) -> list[str]:
+    profile = folder / "profile.toml"
+    if not profile.exists():
+        profile.write_text(profile_to_toml(PROFILE))
+    return ["search", str(profile), "--name", name, "--runs-dir", str(folder / "runs"), *SEARCH]
+
+
+def cli_search(folder, name, moment):
+    """``stillroom search`` of PROFILE in a subprocess told to signal itself at ``moment``."""
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    child = subprocess.Popen([sys.executable, "-c", CHILD, str(run_dir)], cwd=ROOT, env=env)
-    deadline = time.monotonic() + 120
-    try:
-        while True:
-            assert child.poll() is None, "the search ended before it could be killed"
-            assert time.monotonic() < deadline, "the search made no progress"
-            # front.json is written once the study exists: then it is safe to read it
-            if (run_dir / "front.json").exists():
-                trials = trials_of(run_dir)
-                done = sum(t.state == TrialState.COMPLETE for t in trials)
-                running = [t for t in trials if t.state == TrialState.RUNNING and drawn(t)]
-                if done >= 30 and running:
-                    os.kill(child.pid, signal.SIGKILL)
-                    break
-            time.sleep(0.03)
-    finally:
-        child.wait(timeout=30)
-    assert child.returncode == -signal.SIGKILL
-    before = trials_of(run_dir)
-    left_running = [t.number for t in before if t.state == TrialState.RUNNING]
-    assert left_running, "the kill was meant to land inside a trial"
-    finished_before = {
-        t.number: (t.params, t.values) for t in before if t.state == TrialState.COMPLETE
-    }
+    env[TEST_KILL_ENV] = moment
+    command = [sys.executable, "-m", "optimise.cli", *search_args(folder, name)]
+    # the timeout only guards against a hang; it is never what the test measures
+    return subprocess.run(
+        command, cwd=folder, env=env, capture_output=True, text=True, timeout=300
+    )
 
-    out = run_search(PROFILE, run_dir=run_dir, **ARGS)
 
+def resume(folder, name) -> int:
+    """The same command again, in this process (no kill asked)."""
+    from optimise.cli import main
+
+    return main(search_args(folder, name))
+
+
+def report_files(run_dir):
+    return {p.name for p in run_dir.iterdir() if p.suffix in (".csv", ".md", ".tex")}
+
+
+@pytest.fixture(scope="module")
+def cli_reference(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("cli-reference")
+    assert resume(folder, "ref") == 0
+    run_dir = folder / "runs" / "ref"
+    return run_dir, trials_of(run_dir)
+
+
+def repeated_recipes(trials) -> int:
+    ids = [t.user_attrs["recipe_id"] for t in trials if t.state == TrialState.COMPLETE]
+    return len(ids) - len(set(ids))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("moment", KILL_MOMENTS)
+def test_a_kill_at_any_moment_resumes_to_the_uninterrupted_result(tmp_path, cli_reference, moment):
+    ref_dir, ref_trials = cli_reference
+    killed = cli_search(tmp_path, "k", moment)
+    if moment.endswith(":INT"):
+        assert killed.returncode == 130, killed.stderr
+        assert killed.stderr == "interrupted; run the same command to resume\n"
+    else:
+        assert killed.returncode == -signal.SIGKILL, killed.stderr
+    run_dir = tmp_path / "runs" / "k"
+    if (run_dir / "study.db").exists():
+        before = trials_of(run_dir)
+        if moment.endswith(":INT"):  # a Ctrl-C leaves no trial running
+            assert not [t for t in before if t.state == TrialState.RUNNING]
+        finished_before = {
+            t.number: (t.params, t.values) for t in before if t.state == TrialState.COMPLETE
+        }
+    else:
+        finished_before = {}
+
+    assert resume(tmp_path, "k") == 0
     after = trials_of(run_dir)
     by_number = {t.number: t for t in after}
-    # no finished trial lost
-    for number, (params, values) in finished_before.items():
-        assert by_number[number].state == TrialState.COMPLETE
+    for number, (params, values) in finished_before.items():  # no finished trial lost
         assert (by_number[number].params, by_number[number].values) == (params, values)
-    # the trial the kill interrupted is failed, and its recipe asked again once
-    for number in left_running:
-        assert by_number[number].state == TrialState.FAIL
-        again = [t for t in after if t.user_attrs.get("reask_of") == number]
-        assert len(again) == 1 and again[0].state == TrialState.COMPLETE
-        assert (
-            again[0].params.items() >= {k: v for k, v in by_number[number].params.items()}.items()
-        )
-    # none repeated: the same finished trials, in the same order, as without the kill
-    assert complete_sequence(after) == complete_sequence(ref_trials)
-    assert out.n_trials_total == ref_out.n_trials_total == 60
-    assert [r.recipe_id for r in out.front] == [r.recipe_id for r in ref_out.front]
-    assert load_run(run_dir).results == load_run(ref_out.run_dir).results
+    assert not [t for t in after if t.state == TrialState.RUNNING]
+    # the same finished trials as without the kill: none lost or repeated (a trial asked
+    # again on resume comes after those enqueued before the kill, so compare as sets)
+    assert sorted(complete_sequence(after)) == sorted(complete_sequence(ref_trials))
+    assert repeated_recipes(after) == 0
+    assert load_run(run_dir).n_trials == load_run(ref_dir).n_trials == 60
+    assert load_run(run_dir).results == load_run(ref_dir).results
+    assert report_files(run_dir) == report_files(ref_dir) == {"front.csv", "table.md", "table.tex"}
+    assert not (run_dir / ".search.lock").exists()
+
+
+@pytest.mark.slow
+def test_a_kill_while_the_reports_are_written_is_mended_by_the_same_command(
+    tmp_path, cli_reference
+):
+    ref_dir, _ = cli_reference
+    assert resume(tmp_path, "k") == 0
+    # the same command again finds its budget reached and rewrites the front and the
+    # reports: settings.json (write 1), front.json twice (2, 3), front.csv (4), then
+    # recipes.json (5), where it is killed
+    killed = cli_search(tmp_path, "k", "write:5")
+    assert killed.returncode == -signal.SIGKILL
+    assert resume(tmp_path, "k") == 0
+    run_dir = tmp_path / "runs" / "k"
+    assert load_run(run_dir).results == load_run(ref_dir).results
+    for name in ("front.csv", "table.md", "table.tex"):
+        # the tables' provenance says when each run was made; everything else is the same
+        assert _undated((run_dir / name).read_text()) == _undated((ref_dir / name).read_text())
+    assert not [p for p in run_dir.iterdir() if p.name.endswith(".tmp")]  # nothing half-written
+
+
+def _undated(text: str) -> str:
+    return re.sub(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?([+-]\d\d:\d\d|Z)?", "<date>", text)
 
 
 @pytest.mark.slow
@@ -153,12 +200,12 @@ def test_ctrl_c_inside_a_trial_then_resume(tmp_path, reference, monkeypatch):
     with pytest.raises(KeyboardInterrupt):
         run_search(PROFILE, run_dir=run_dir, **ARGS)
     partial = load_run(run_dir)  # the front written so far survives the interruption
-    assert partial.n_trials == 44
     failed = [t for t in trials_of(run_dir) if t.state == TrialState.FAIL]
     assert len(failed) == 1 and "error" not in failed[0].user_attrs
+    assert partial.n_trials == failed[0].number  # every trial before it finished
     monkeypatch.setattr(optimise.objective, "evaluate", evaluate)
     out = run_search(PROFILE, run_dir=run_dir, **ARGS)
-    assert out.n_trials_this_run == 16
+    assert out.n_trials_this_run == 60 - partial.n_trials
     assert complete_sequence(trials_of(run_dir)) == complete_sequence(ref_trials)
     assert [r.recipe_id for r in out.front] == [r.recipe_id for r in ref_out.front]
 

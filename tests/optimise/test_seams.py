@@ -116,7 +116,7 @@ def test_run_folder_files_missing_corrupt_or_foreign_are_one_error(tmp_path):
 
 def test_a_corrupt_exhaustive_cache_stops_the_command_with_one_line(tmp_path, capsys):
     args = ["search", "--runs-dir", str(tmp_path), "--name", "c", "--no-progress"]
-    args += ["--depth", "2", "--trials", "0", "--exhaustive-depth", "1", "--json"]
+    args += ["--depth", "2", "--trials", "1", "--exhaustive-depth", "1", "--json"]
     assert main(args) == 0
     capsys.readouterr()
     (tmp_path / "c" / "exhaustive.json").write_text("{truncated", encoding="utf-8")

@@ -76,4 +76,4 @@ def test_opened_storages_hold_a_study(tmp_path):
 def test_unreachable_server_is_a_clear_error(tmp_path):
     # a port nothing listens on (loopback only)
     with pytest.raises(InputError, match="cannot open storage"):
-        open_storage("postgresql+psycopg2://u:pw@127.0.0.1:9/none", tmp_path)
+        open_storage("postgresql://u:pw@127.0.0.1:9/none", tmp_path)

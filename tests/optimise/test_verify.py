@@ -214,7 +214,10 @@ def test_cli_prints_the_comparison_side_by_side(tmp_path, capsys):
 def test_cli_bad_recipe_exits_2(capsys):
     assert main(["verify", "sY.q"]) == 2
     err = capsys.readouterr().err
-    assert err.startswith("stillroom: cannot read recipe 'sY.q'") and "^" in err
+    # one line; the caret diagram only with --verbose
+    assert err.startswith("stillroom: cannot read recipe 'sY.q'") and err.count("\n") == 1
+    assert main(["verify", "sY.q", "--verbose"]) == 2
+    assert "^" in capsys.readouterr().err
 
 
 def test_table_verify_adds_a_verified_column(tmp_path, monkeypatch, capsys):
@@ -242,3 +245,11 @@ def test_verify_help_has_examples(capsys):
     out = capsys.readouterr().out
     assert "stillroom verify" in out.split("examples:")[1]
     assert "--samples" in out and "--seed" in out and "--json" in out
+
+
+@pytest.mark.parametrize("count", ["1", "99999999999", "-3", "lots"])
+def test_cli_sample_count_outside_its_range_is_one_line(count, capsys):
+    # bad input: exit 2 and one line naming the option (common practice, no source)
+    assert main(["verify", "sY", "--samples", count]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "--samples" in err
