@@ -389,6 +389,7 @@ def deep_front(
     codes=None,
     symmetry: bool = True,
     trees: bool = True,
+    max_chain: int | None = None,
     on_level=None,
 ) -> DeepFront:
     """Breadth-first search over made pairs with Pareto pruning (see the module doc).
@@ -417,6 +418,9 @@ def deep_front(
     trees : bool
         Offer made pairs as sacrificed pairs (False: linear recipes only, the
         exhaustive layer's space, pruned).
+    max_chain : int, optional
+        Most rounds in a front recipe's main chain (pairs with longer chains
+        still serve as sacrificed pairs); ``limits.max_depth`` caps it too.
     on_level : callable(level, pairs, evaluations, seconds), optional
 
     Returns
@@ -429,7 +433,9 @@ def deep_front(
     for name, value, low in (("max_depth", max_depth, 1), ("layers", layers, 0), ("width", width, 0)):
         if isinstance(value, bool) or not isinstance(value, int) or value < low:
             raise ValueError(f"{name} = {value!r} must be an integer >= {low}")
-    depth = max_depth if limits.max_depth is None else min(max_depth, limits.max_depth)
+    depth = max_depth
+    caps = [c for c in (max_chain, limits.max_depth) if c is not None]
+    max_chain = min(caps) if caps else depth
     code_set = space_codes(include_double, codes)
     closed = closed_under_rotations(code_set)
     options = {
@@ -458,7 +464,7 @@ def deep_front(
         evaluations.append(n)
         if on_level is not None:
             on_level(d, kept[-1], n, time.monotonic() - t0)
-    results, equivalents = _front(profile, library, objectives)
+    results, equivalents = _front(profile, library, objectives, max_chain)
     return DeepFront(
         results=results,
         equivalents=equivalents,
@@ -472,11 +478,13 @@ def deep_front(
     )
 
 
-def _front(profile, library, objectives):
-    """The front over every library pair, rebuilt, re-evaluated and checked."""
-    where = [(d, r) for d, lv in enumerate(library) for r in range(len(lv.batch))]
+def _front(profile, library, objectives, max_chain):
+    """The front over the library pairs, rebuilt, re-evaluated and checked."""
+    where = [
+        (d, r) for d, lv in enumerate(library) for r in np.flatnonzero(lv.chain <= max_chain)
+    ]
     values = np.concatenate(
-        [objective_values(lv.batch, objectives)[0] for lv in library if len(lv.batch)]
+        [objective_values(library[d].batch.take([r]), objectives)[0] for d, r in where]
     )
     maximise = tuple(o in ("fidelity", "yield") for o in objectives)
     q = quantise(values)
