@@ -163,6 +163,9 @@ class _Level:
     chain: np.ndarray  # rounds in the main chain
     keys: np.ndarray = None
     seed_rows: dict = field(default_factory=dict)  # seed prefix (codes) -> row
+    # pairs the pruning chose (seeds kept only as seeds are not offered as sources,
+    # which would multiply the sourced rounds by the number of seeds)
+    searched: np.ndarray = None
 
 
 @dataclass
@@ -202,9 +205,10 @@ def _filter(batch, success, options):
 
 
 def _sourced_rows(kept: _Level, source: _Level, same_level: bool, base, profile, dedupe):
-    """(kept row, source row, code) of every sourced round on two levels."""
-    nk, ns = len(kept.batch), len(source.batch)
-    k_rows, s_rows = np.meshgrid(np.arange(nk), np.arange(ns), indexing="ij")
+    """(kept row, source row, code) of every sourced round on two levels' searched pairs."""
+    k_rows, s_rows = np.meshgrid(
+        np.flatnonzero(kept.searched), np.flatnonzero(source.searched), indexing="ij"
+    )
     k_rows, s_rows = k_rows.ravel(), s_rows.ravel()
     if same_level:  # a pair sacrificing copies of itself is a symmetric round, made elsewhere
         other = k_rows != s_rows
@@ -212,8 +216,8 @@ def _sourced_rows(kept: _Level, source: _Level, same_level: bool, base, profile,
     if not dedupe:
         return np.repeat(k_rows, len(base)), np.repeat(s_rows, len(base)), np.tile(base, len(k_rows))
     p1 = profile.noise.single_qubit
-    kept_ok = canonical_rotations(kept.batch.bell, p1)  # (nk, 6)
-    src_ok = canonical_rotations(source.batch.bell, p1)  # (ns, 6)
+    kept_ok = canonical_rotations(kept.batch.bell, p1)  # (rows, 6)
+    src_ok = canonical_rotations(source.batch.bell, p1)
     rot = CODE_ROTATIONS[base]
     valid = kept_ok[k_rows][:, rot[:, 0]]
     for j in range(1, WIDEST):
@@ -313,6 +317,7 @@ def _expand(library, d, profile, codes, options, out_level, seeds_here):
     batch, _, origin = gather.squeeze()
     values, maximise = objective_values(batch, options["objectives"])
     origin = origin[pareto_layers(values, maximise, options["layers"], options["width"])]
+    chosen = len(origin)
     # seeds (known good linear recipes) stay in the library whatever the pruning
     prefixes = sorted(p for p in seeds_here if p[:-1] in library[d - 1].seed_rows)
     if prefixes:
@@ -339,7 +344,7 @@ def _expand(library, d, profile, codes, options, out_level, seeds_here):
     seed_rows = {p: int(np.searchsorted(keep, r)) for p, r in target.items()}
     origin, batch, keys = origin[keep], batch.take(keep), keys[keep]
     chain = np.array([library[a].chain[r] + 1 for a, r in origin[:, :2]], dtype=np.int64)
-    level = _Level(batch, *origin.T, chain, keys, seed_rows)
+    level = _Level(batch, *origin.T, chain, keys, seed_rows, keep < chosen)
     return level, gather.evaluations
 
 
@@ -452,7 +457,9 @@ def deep_front(
     grows = profile.bound().lattice(0).grows
     raw = start_chains(profile, 1, rounds_ahead=depth)
     none = np.zeros(1, dtype=np.int64)
-    library = [_Level(raw, none - 1, none, none, none, none - 1, none, seed_rows={(): 0})]
+    library = [
+        _Level(raw, none - 1, none, none, none, none - 1, none, None, {(): 0}, none == 0)
+    ]
     prefixes = _seed_prefixes(seeds, depth)
     kept, evaluations = [], []
     for d in range(1, depth + 1):

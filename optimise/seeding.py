@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from models.notation import parse_recipe
 
-from .deep import DeepFront, deep_front
+from .deep import DEFAULT_WIDTH, DeepFront, deep_front
 from .exhaustive import ExhaustiveFront, exhaustive_front
 from .space import recipe_params
 
@@ -13,6 +13,8 @@ from .space import recipe_params
 AUTO_MAX_EVALUATIONS = 3_000_000
 # most levels of the deep layer in a search (its time grows about linearly with them)
 DEEP_LEVELS_LIMIT = 12
+# pairs kept per level of the deep layer in a search (read at each call)
+DEEP_WIDTH = DEFAULT_WIDTH
 
 NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     results=[],
@@ -91,6 +93,7 @@ def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
         profile,
         max_depth=min(2 * settings.depth_cap, DEEP_LEVELS_LIMIT),
         max_chain=settings.depth_cap,
+        width=DEEP_WIDTH,
         objectives=settings.objectives,
         limits=settings.limits,
         seeds=seeds,
