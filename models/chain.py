@@ -403,7 +403,9 @@ def advance_sourced(
             f"{si.shape}; expected one equal (N,) shape"
         )
     if CODE_SAME[codes].any():
-        raise ValueError("advance_sourced takes rounds with sacrificed 'raw'; the source replaces it")
+        raise ValueError(
+            "advance_sourced takes rounds with sacrificed 'raw'; the source replaces it"
+        )
     bound = profile.bound()
     if bound.lattice(0).grows:
         lattice = bound.lattice(int(level) + WIDEST - 1)
@@ -446,7 +448,9 @@ def advance_sourced(
     mk, ms = kept.memory[ki], source.memory[si]
     # max over making order of (memory of the input + inputs stored before it)
     memory = np.where(
-        kept_first, np.maximum(mk, ms + n_sacrificed), np.maximum(ms + n_sacrificed - 1, mk + n_sacrificed)
+        kept_first,
+        np.maximum(mk, ms + n_sacrificed),
+        np.maximum(ms + n_sacrificed - 1, mk + n_sacrificed),
     )
     out = ChainBatch(
         weighted.state[:, 0].copy(),

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -114,8 +114,13 @@ class DeepFront:
 
 def describe_deep_space(depth: int, layers: int, width: int) -> str:
     """One sentence naming the deep layer's search."""
-    kept = "every pair" if not width and not layers else (
-        f"the pairs on the first {layers} Pareto layers" + (f", at most {width}" if width else "")
+    kept = (
+        "every pair"
+        if not width and not layers
+        else (
+            f"the pairs on the first {layers} Pareto layers"
+            + (f", at most {width}" if width else "")
+        )
     )
     return (
         f"trees of up to {depth} levels built from made pairs (pumping with raw pairs, "
@@ -214,7 +219,11 @@ def _sourced_rows(kept: _Level, source: _Level, same_level: bool, base, profile,
         other = k_rows != s_rows
         k_rows, s_rows = k_rows[other], s_rows[other]
     if not dedupe:
-        return np.repeat(k_rows, len(base)), np.repeat(s_rows, len(base)), np.tile(base, len(k_rows))
+        return (
+            np.repeat(k_rows, len(base)),
+            np.repeat(s_rows, len(base)),
+            np.tile(base, len(k_rows)),
+        )
     p1 = profile.noise.single_qubit
     kept_ok = canonical_rotations(kept.batch.bell, p1)  # (rows, 6)
     src_ok = canonical_rotations(source.batch.bell, p1)
@@ -230,7 +239,11 @@ def _sourced_rows(kept: _Level, source: _Level, same_level: bool, base, profile,
 def _origin(n, kept_level, kept_row, source_level, source_row, code):
     out = np.empty((n, 5), dtype=np.int64)
     out[:, 0], out[:, 1], out[:, 2], out[:, 3], out[:, 4] = (
-        kept_level, kept_row, source_level, source_row, code,
+        kept_level,
+        kept_row,
+        source_level,
+        source_row,
+        code,
     )
     return out
 
@@ -258,8 +271,9 @@ def _propose(library, d, profile, codes, options, gather):
         gather.add(
             out,
             state_keys(out.bell, out.weighted[:, :1], options["symmetry"]),
-            _origin(len(out), kept_level, kept_row[rows][ok], src, source_row[rows][ok],
-                    new_codes[ok]),
+            _origin(
+                len(out), kept_level, kept_row[rows][ok], src, source_row[rows][ok], new_codes[ok]
+            ),
         )
         gather.evaluations += len(code)
 
@@ -284,8 +298,13 @@ def _propose(library, d, profile, codes, options, gather):
             for lo in range(0, len(code), BATCH):
                 sl = slice(lo, lo + BATCH)
                 out, success = advance_sourced(
-                    library[a].batch, library[b].batch, code[sl], profile,
-                    kept_index=ki[sl], source_index=si[sl], level=0,
+                    library[a].batch,
+                    library[b].batch,
+                    code[sl],
+                    profile,
+                    kept_index=ki[sl],
+                    source_index=si[sl],
+                    level=0,
                 )
                 offer(out, success, code[sl], a, ki[sl], b, si[sl])
 
@@ -301,8 +320,13 @@ def _make(library, origin, profile, level) -> ChainBatch:
             out, _ = advance(kept, origin[here, 4], profile, parent=origin[here, 1], level=level)
         else:
             out, _ = advance_sourced(
-                kept, library[source_level].batch, origin[here, 4], profile,
-                kept_index=origin[here, 1], source_index=origin[here, 3], level=level,
+                kept,
+                library[source_level].batch,
+                origin[here, 4],
+                profile,
+                kept_index=origin[here, 1],
+                source_index=origin[here, 3],
+                level=level,
             )
         pieces.append(out)
         rows.append(here)
@@ -435,7 +459,11 @@ def deep_front(
     started = time.monotonic()
     objectives = check_objectives(objectives)
     limits = as_limits(limits)
-    for name, value, low in (("max_depth", max_depth, 1), ("layers", layers, 0), ("width", width, 0)):
+    for name, value, low in (
+        ("max_depth", max_depth, 1),
+        ("layers", layers, 0),
+        ("width", width, 0),
+    ):
         if isinstance(value, bool) or not isinstance(value, int) or value < low:
             raise ValueError(f"{name} = {value!r} must be an integer >= {low}")
     depth = max_depth
@@ -457,9 +485,7 @@ def deep_front(
     grows = profile.bound().lattice(0).grows
     raw = start_chains(profile, 1, rounds_ahead=depth)
     none = np.zeros(1, dtype=np.int64)
-    library = [
-        _Level(raw, none - 1, none, none, none, none - 1, none, None, {(): 0}, none == 0)
-    ]
+    library = [_Level(raw, none - 1, none, none, none, none - 1, none, None, {(): 0}, none == 0)]
     prefixes = _seed_prefixes(seeds, depth)
     kept, evaluations = [], []
     for d in range(1, depth + 1):
@@ -487,9 +513,7 @@ def deep_front(
 
 def _front(profile, library, objectives, max_chain):
     """The front over the library pairs, rebuilt, re-evaluated and checked."""
-    where = [
-        (d, r) for d, lv in enumerate(library) for r in np.flatnonzero(lv.chain <= max_chain)
-    ]
+    where = [(d, r) for d, lv in enumerate(library) for r in np.flatnonzero(lv.chain <= max_chain)]
     values = np.concatenate(
         [objective_values(library[d].batch.take([r]), objectives)[0] for d, r in where]
     )

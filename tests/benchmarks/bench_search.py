@@ -289,7 +289,9 @@ def coverage(profile, depth: int, width: int):
     missed = [
         r.notation
         for r in exhaustive.results
-        if not np.any((found[:, 0] >= r.fidelity * (1 - 1e-9)) & (found[:, 1] >= r.pair_yield * (1 - 1e-9)))
+        if not np.any(
+            (found[:, 0] >= r.fidelity * (1 - 1e-9)) & (found[:, 1] >= r.pair_yield * (1 - 1e-9))
+        )
     ]
     return len(exhaustive.results), missed
 
@@ -343,7 +345,8 @@ def targets(names, long_factor, layers_only, coverage_depth, coverage_width, ski
         if coverage_depth:
             n, missed = coverage(profile, coverage_depth, coverage_width)
             print(
-                f"deep layer alone (width {coverage_width}) at depth {coverage_depth}: finds {n - len(missed)} of {n} "
+                f"deep layer alone (width {coverage_width}) at depth {coverage_depth}: "
+                f"finds {n - len(missed)} of {n} "
                 "exhaustive front points"
                 + (f"; misses {len(missed)}, e.g. {', '.join(missed[:5])}" if missed else "")
             )
@@ -374,8 +377,12 @@ def main(argv=None) -> int:
     if args.targets:
         names = [n for n in args.profiles.split(",") if n]
         targets(
-            names, args.long_factor, args.layers_only, args.coverage_depth,
-            args.coverage_width, args.skip_long,
+            names,
+            args.long_factor,
+            args.layers_only,
+            args.coverage_depth,
+            args.coverage_width,
+            args.skip_long,
         )
         return 0
     if not args.skip_speed:

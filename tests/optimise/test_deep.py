@@ -90,8 +90,12 @@ def test_advance_sourced_refuses_symmetric_codes():
     raw = start_chains(profile, 1)
     with pytest.raises(ValueError, match="sacrificed 'raw'"):
         advance_sourced(
-            raw, raw, [round_code(Round("single", "same", "Y"))], profile,
-            kept_index=[0], source_index=[0],
+            raw,
+            raw,
+            [round_code(Round("single", "same", "Y"))],
+            profile,
+            kept_index=[0],
+            source_index=[0],
         )
 
 
