@@ -16,7 +16,13 @@ then only the pairs on the first ``layers`` Pareto layers of the objectives
 (fidelity and yield, and memory and time when asked) are kept, at most
 ``width`` of them. That pruning is a heuristic: a pair off those layers may
 have better continuations. With an unlimited width and layers the deep layer
-over linear rounds is the exhaustive layer (the tests check it).
+over linear rounds is the exhaustive layer (the tests check it). Candidates are
+first evaluated for their figures only (their own waiting data at rate 0, which
+is cheap); with decaying memories, candidates with identical Bell weights and
+costs count once in that choice, and the kept pairs are then made again with all
+their waiting data and merged exactly. Seeds (known linear recipes, with their
+prefixes) are kept whatever the pruning, but only the pairs the pruning chose
+are offered as sacrificed pairs.
 
 Every recipe on the final front is rebuilt from its back-pointers and
 re-evaluated with :func:`models.evaluate.evaluate`; the two must agree. Recipes
