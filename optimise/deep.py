@@ -18,8 +18,8 @@ then only the pairs on the first ``layers`` Pareto layers of the objectives
 have better continuations. With an unlimited width and layers the deep layer
 over linear rounds is the exhaustive layer (the tests check it). Candidates are
 first evaluated for their figures only (their own waiting data at rate 0, which
-is cheap); with decaying memories, candidates with identical Bell weights and
-costs count once in that choice, and the kept pairs are then made again with all
+is cheap); with decaying memories, of candidates with identical Bell weights
+only the cheapest takes part in that choice; the kept pairs are then made with all
 their waiting data and merged exactly. Seeds (known linear recipes, with their
 prefixes) are kept whatever the pruning, but only the pairs the pruning chose
 are offered as sacrificed pairs.
