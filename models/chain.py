@@ -338,10 +338,13 @@ def advance(
     return _finish(chains.take(parent), codes, branch, bound, lattice)
 
 
-def _attempts(kind, joint, group, group_codes, bound, branch):
-    """Success branches of ``group`` (sorted by code), written into ``branch[group]``."""
+def _attempts(kind, joint, group, group_codes, bound, branch, order=None):
+    """Success branches of ``group`` (sorted by code), written into ``branch[group]``.
+
+    ``order``: the role of each input in making order (default: kept pair first).
+    """
     distinct, starts = np.unique(group_codes, return_index=True)
-    order = tuple(range(kind.n_inputs))
+    order = tuple(range(kind.n_inputs)) if order is None else order
     rates = joint.dense.shape[1] if joint.dense is not None else joint.factors[0].shape[1]
     if group.size * rates < SMALL_GROUPS * distinct.size:
         # many codes with few rows each: one call with per-row rotations
@@ -354,6 +357,111 @@ def _attempts(kind, joint, group, group_codes, bound, branch):
         part = joint.take(slice(lo, hi))
         rotations = LINEAR_ROUNDS[code].rotations
         branch[group[lo:hi]] = run_attempt(kind.circuit, part, order, rotations, bound)
+
+
+def advance_sourced(
+    kept: ChainBatch, source: ChainBatch, codes, profile, *, kept_index, source_index, level=0
+) -> tuple[ChainBatch, np.ndarray]:
+    """Rounds whose sacrificed pairs are made by another recipe: row i keeps
+    ``kept[kept_index[i]]`` and sacrifices independent copies of ``source[source_index[i]]``.
+
+    The pairs of a tree recipe: the sacrificed pairs of round ``codes[i]`` (its
+    kind, rotations and re-twirl; its ``sacrificed`` field must be ``"raw"``, which
+    here stands for "not copies of the kept pair") are made by the recipe of the
+    source row, as :class:`models.recipes.Round` with ``sacrificed="sub"``. The
+    inputs are made in :func:`models.making.making_order` of their memory needs
+    (the source first when it needs more qubits than the kept pair), each waits
+    while the later ones are made (:func:`models.waiting.joint_waits`), failures
+    restart every input; costs, memory, rounds and times follow
+    :mod:`models.evaluate`, whose figures this reproduces to rounding.
+
+    Parameters
+    ----------
+    kept, source : ChainBatch
+        Each row must carry its time-weighted states up to ``level + WIDEST - 1``.
+    codes : int array, shape (N,)
+        Indices into :data:`LINEAR_ROUNDS` of rounds with ``sacrificed == "raw"``.
+    profile : models.Profile
+    kept_index, source_index : int arrays, shape (N,)
+        Rows of ``kept`` and ``source``.
+    level : int
+        Level of the rate lattice the outputs carry.
+
+    Returns
+    -------
+    chains : ChainBatch of N rows, carrying ``level``
+    success : ndarray, shape (N,)
+        Success probability of each row's step.
+    """
+    codes = _check_codes(codes, 0)
+    ki = np.asarray(kept_index, dtype=np.intp)
+    si = np.asarray(source_index, dtype=np.intp)
+    n = codes.size
+    if codes.shape != (n,) or ki.shape != (n,) or si.shape != (n,):
+        raise ValueError(
+            f"codes, kept_index and source_index have shapes {codes.shape}, {ki.shape}, "
+            f"{si.shape}; expected one equal (N,) shape"
+        )
+    if CODE_SAME[codes].any():
+        raise ValueError(
+            "advance_sourced takes rounds with sacrificed 'raw'; the source replaces it"
+        )
+    bound = profile.bound()
+    if bound.lattice(0).grows:
+        lattice = bound.lattice(int(level) + WIDEST - 1)
+        k = lattice.size(int(level))
+    else:
+        lattice, k = bound.lattice(0), 1
+    branch = np.empty((n, k, 4))
+    kept_first = kept.memory[ki] >= source.memory[si]
+    order = np.lexsort((codes, ~kept_first))
+    chunk = max(1, CHUNK_ROWS // k)
+    for lo in range(0, n, chunk):
+        rows = order[lo : lo + chunk]
+        for selection, kind in STEP_KINDS.items():
+            m = kind.n_inputs - 1
+            for first in (True, False):
+                mask = (CODE_SELECTION[codes[rows]] == selection) & (kept_first[rows] == first)
+                if not mask.any():
+                    continue
+                group = rows[mask]
+                pair = ki[group] * len(source) + si[group]
+                pairs, inverse = np.unique(pair, return_inverse=True)
+                own = kept.take(pairs // len(source)).timed
+                other = source.take(pairs % len(source)).timed
+                # making order (models.making): the kept pair first unless the source
+                # needs more qubits, and then last
+                made = [own] + [other] * m if first else [other] * m + [own]
+                roles = tuple(range(m + 1)) if first else tuple(range(1, m + 1)) + (0,)
+                joint = joint_waits(made, lattice, k).take(inverse.ravel())
+                _attempts(kind, joint, group, codes[group], bound, branch, roles)
+    n_sacrificed = CODE_N_INPUTS[codes] - 1
+    deficit = joint_deficit([kept.deficit[ki, :k]])
+    for i in range(WIDEST - 1):
+        more = joint_deficit([deficit, source.deficit[si, :k]])
+        deficit = np.where((n_sacrificed > i)[:, None], more, deficit)
+    success, weighted = retry(branch, deficit, bound, lattice, twirled=CODE_TWIRL[codes])
+    ok = success > 0
+    safe = np.where(ok, success, 1.0)
+    cost = kept.raw_pairs[ki] + n_sacrificed * source.raw_pairs[si]
+    time_s = kept.time_s[ki] + n_sacrificed * source.time_s[si]
+    mk, ms = kept.memory[ki], source.memory[si]
+    # max over making order of (memory of the input + inputs stored before it)
+    memory = np.where(
+        kept_first,
+        np.maximum(mk, ms + n_sacrificed),
+        np.maximum(ms + n_sacrificed - 1, mk + n_sacrificed),
+    )
+    out = ChainBatch(
+        weighted.state[:, 0].copy(),
+        np.where(ok, cost / safe, np.inf),
+        memory.astype(np.int64),
+        np.maximum(kept.rounds[ki], source.rounds[si]) + 1,
+        np.where(ok, (time_s + bound.delay_s) / safe, np.inf),
+        weighted.state,
+        weighted.deficit,
+    )
+    return out, success
 
 
 def advance_every(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.ndarray]:

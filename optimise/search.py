@@ -34,7 +34,7 @@ from .progress import SearchProgress
 from .resume import fail_stale_trials, reask_abandoned, register_worker, registered_workers
 from .run import Run, load_run, same_values
 from .samplers import SlotSeededSampler, finished_count
-from .seeding import enqueue_known, exhaustive_layer
+from .seeding import deep_layer, enqueue_known, exhaustive_layer
 from .settings import SearchSettings
 from .space import is_linear_space
 from .storage import StorageSpec, open_resolved, resolve_storage
@@ -213,9 +213,19 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
             )
         checkpoint("exhaustive")
 
+    def on_level(d, pairs, evaluations, seconds):
+        if bar.enabled:
+            bar.note(
+                f"deep layer: level {d}, {pairs:,d} pairs kept of "
+                f"{evaluations:,d} rounds evaluated in {seconds:.1f} s"
+            )
+        checkpoint("deep")
+
     with stop.interruptible():  # pure computation: a Ctrl-C ends it at once
         exhaustive = exhaustive_layer(profile, run, settings, on_depth=on_depth)
         baselines = baseline_results(profile, settings.max_depth)
+        known = [r.notation for r in exhaustive.results] + [b.result.notation for b in baselines]
+        deep = deep_layer(profile, settings, known, on_level=on_level)
     me = worker_identity()
     register_worker(study, me)  # before any trial is asked: see optimise.resume
     done_before = finished_count(study)  # trials asked again below are this run's work
@@ -241,7 +251,7 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
 
         enqueue_known(
             study,
-            [r.notation for r in exhaustive.results] + [b.result.notation for b in baselines],
+            [r.notation for r in deep.results] + known,
             depth,
             between=between,
         )
@@ -255,6 +265,7 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
         exhaustive=exhaustive,
         complete=complete,
     )
+    tracker.add_layer(deep.space, deep.results)
     done_now = finished_count(study)
     tracker.add_trials(study.get_trials(deepcopy=False))
     tracker.write(done_now)

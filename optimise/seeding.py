@@ -4,12 +4,17 @@ from __future__ import annotations
 
 from models.notation import parse_recipe
 
+from .deep import DEFAULT_WIDTH, DeepFront, deep_front
 from .exhaustive import ExhaustiveFront, exhaustive_front
 from .space import recipe_params
 
 # automatic depth: expand a depth only while it needs at most this many rounds
 # evaluated, which keeps the exhaustive layer to seconds (see tests/benchmarks)
 AUTO_MAX_EVALUATIONS = 3_000_000
+# most levels of the deep layer in a search (its time grows about linearly with them)
+DEEP_LEVELS_LIMIT = 12
+# pairs kept per level of the deep layer in a search (read at each call)
+DEEP_WIDTH = DEFAULT_WIDTH
 
 NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     results=[],
@@ -74,3 +79,23 @@ def enqueue_known(study, notations, max_depth: int, between=None) -> int:
         if between is not None:
             between()
     return len(study.get_trials(deepcopy=False)) - before if count else 0
+
+
+def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
+    """The deep layer of a search (:mod:`optimise.deep`), seeded with known recipes.
+
+    Levels: twice the depth cap (the default ``--depth 5`` gives 10), at most
+    :data:`DEEP_LEVELS_LIMIT`; front recipes keep to the depth cap in their main
+    chain, deeper pairs serve as sacrificed pairs. Deterministic, so a resumed run
+    computes the same front again.
+    """
+    return deep_front(
+        profile,
+        max_depth=min(2 * settings.depth_cap, DEEP_LEVELS_LIMIT),
+        max_chain=settings.depth_cap,
+        width=DEEP_WIDTH,
+        objectives=settings.objectives,
+        limits=settings.limits,
+        seeds=seeds,
+        on_level=on_level,
+    )

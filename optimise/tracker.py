@@ -92,6 +92,14 @@ class FrontTracker:
                 self._known.setdefault(b.result.recipe_id, b.result)
                 self.offer(b.result.to_dict(), b.depth)
 
+    def add_layer(self, sentence: str, results) -> None:
+        """Offer the front of another search layer (RecipeResult objects), named in the space."""
+        head, sep, tail = self.space_sentence.partition("; and ")
+        self.space_sentence = f"{head}; {sentence}{sep}{tail}"
+        for r in results:
+            self._known.setdefault(r.recipe_id, r)
+            self.offer(r.to_dict(), len(r.trace))
+
     def offer(self, entry: dict, depth: int) -> bool:
         """Consider one recipe (``RecipeResult.to_dict()`` form); True if the front changed."""
         violations = self.limits.violations(

@@ -24,6 +24,18 @@ Run from anywhere (pytest ignores this folder)::
    over the seeds. TPE's cost per trial grows with the trials done: at depth 3
    (about 6,000 trials for 5%) it takes of the order of 15 minutes per seed.
 
+3. Targets (``--targets``): for five invented profiles (perfect and decaying
+   memories, a biased raw pair, a harsh one, the demo), for each target F* in
+   0.90 ... 0.995, the cheapest recipe and its raw pairs per output found by (a)
+   the best textbook baseline at any depth up to 12, (b) the default search, (c)
+   a long reference run (``--long-factor`` times the default budget: trials, and
+   the deep layer's width times its square root, its cost growing as the width
+   squared), with wall times and load average; the highest fidelity each reaches;
+   and whether the deep layer alone (not seeded) finds every point of the
+   exhaustive front at ``--coverage-depth``. The raw pair counts as a recipe on
+   every side. ``--layers-only`` runs (b) and (c) without the optuna study (the
+   exhaustive and deep layers only), for a quick look.
+
 Speed is never asserted in a test.
 """
 
@@ -190,6 +202,156 @@ def quality(depth: int, jobs: int, samplers=("nsga2", "tpe", "random"), seeds=(0
     )
 
 
+TARGETS = (0.90, 0.95, 0.97, 0.98, 0.99, 0.995)
+
+
+def target_profiles() -> dict:
+    """Five invented profiles (made-up figures, no real device)."""
+    from optimise.profiles import demo_profile
+
+    return {
+        "werner-perfect-memory": Profile(
+            tuple(werner(0.8)),
+            NodeNoise(two_qubit=0.99, single_qubit=1.0, measurement=0.99),
+            name="werner-perfect-memory",
+        ),
+        "decaying-memory": Profile(
+            tuple(werner(0.85)),
+            NodeNoise(two_qubit=0.99, single_qubit=0.999, measurement=0.99, t1_s=10.0, t2_s=2.0),
+            length_km=20.0,
+            pair_rate_hz=1000.0,
+            name="decaying-memory",
+        ),
+        "biased-raw-pair": Profile(
+            (0.88, 0.01, 0.01, 0.10),
+            NodeNoise(two_qubit=0.995, single_qubit=0.999, measurement=0.995),
+            name="biased-raw-pair",
+        ),
+        "harsh": Profile(
+            tuple(werner(0.7)),
+            NodeNoise(two_qubit=0.97, single_qubit=0.99, measurement=0.98, t1_s=0.5, t2_s=0.2),
+            length_km=10.0,
+            pair_rate_hz=1000.0,
+            name="harsh",
+        ),
+        "demo": demo_profile(),
+    }
+
+
+def cheapest(results, target):
+    """(notation, raw pairs) of the cheapest result reaching ``target``, or None."""
+    ok = [r for r in results if r.fidelity >= target]
+    if not ok:
+        return None
+    best = min(ok, key=lambda r: (r.raw_pairs_per_output, len(r.notation), r.notation))
+    return best.notation, best.raw_pairs_per_output
+
+
+def best_baselines(profile, max_depth=12):
+    from models.baselines import BASELINES, baseline
+
+    raw = evaluate("raw", profile)
+    out = [raw]
+    for name in BASELINES:
+        for depth in range(1, max_depth + 1):
+            out.append(evaluate(baseline(name, depth), profile))
+    return out
+
+
+def layered_search(profile, factor: float, layers_only: bool, folder):
+    """The default search (factor 1) or a longer one; returns (results, seconds)."""
+    import optimise.seeding as seeding
+    from optimise.search import run_search
+    from optimise.settings import SearchSettings
+
+    started = time.monotonic()
+    width = seeding.DEEP_WIDTH
+    seeding.DEEP_WIDTH = int(round(width * factor**0.5))
+    try:
+        defaults = SearchSettings(max_depth=5, n_trials=1000)
+        trials = 0 if layers_only else int(defaults.n_trials * factor)
+        outcome = run_search(
+            profile, run_dir=folder, settings=defaults.replace(n_trials=trials), progress=False
+        )
+    finally:
+        seeding.DEEP_WIDTH = width
+    results = list(outcome.front) + [evaluate("raw", profile)]
+    return results, time.monotonic() - started
+
+
+def coverage(profile, depth: int, width: int):
+    """Exhaustive front points at ``depth`` the unseeded deep layer misses."""
+    from optimise.deep import deep_front
+
+    exhaustive = exhaustive_front(profile, max_depth=depth, n_jobs=2)
+    deep = deep_front(profile, max_depth=depth, width=width)
+    found = np.array([[r.fidelity, r.pair_yield] for r in deep.results])
+    missed = [
+        r.notation
+        for r in exhaustive.results
+        if not np.any(
+            (found[:, 0] >= r.fidelity * (1 - 1e-9)) & (found[:, 1] >= r.pair_yield * (1 - 1e-9))
+        )
+    ]
+    return len(exhaustive.results), missed
+
+
+def targets(names, long_factor, layers_only, coverage_depth, coverage_width, skip_long) -> None:
+    import tempfile
+
+    print("\n== targets: cheapest recipe per target (raw pairs per output) ==")
+    print(
+        f"(b) default search{' (exhaustive + deep layers only)' if layers_only else ''}; "
+        f"(c) {long_factor:g} x the default budget"
+    )
+    for name, profile in target_profiles().items():
+        if names and name not in names:
+            continue
+        with tempfile.TemporaryDirectory() as tmp:
+            t0 = time.monotonic()
+            base = best_baselines(profile)
+            base_s = time.monotonic() - t0
+            load = os.getloadavg()[0]
+            default, default_s = layered_search(profile, 1.0, layers_only, Path(tmp) / "default")
+            load = max(load, os.getloadavg()[0])
+            if skip_long:
+                long, long_s = [], float("nan")
+            else:
+                long, long_s = layered_search(profile, long_factor, layers_only, Path(tmp) / "long")
+            load = max(load, os.getloadavg()[0])
+        print(
+            f"\n-- {name}: wall (a) {base_s:.1f} s, (b) {default_s:.1f} s, (c) {long_s:.1f} s "
+            f"(load average up to {load:.2f} on 2 cores)"
+        )
+        print(f"{'F*':>6}  {'(a) baseline':>34}  {'(b) default':>44}  {'(c) long':>44}  checks")
+        for t in TARGETS:
+            a, b = cheapest(base, t), cheapest(default, t)
+            c = cheapest(long, t) if long else None
+            checks = []
+            if a is not None:
+                checks.append("b<=a" if b is not None and b[1] <= a[1] * (1 + 1e-9) else "b>a!")
+            if c is not None:
+                checks.append("within 2%" if b is not None and b[1] <= c[1] * 1.02 else "over 2%!")
+
+            def cell(x, width):
+                if x is None:
+                    return f"{'-':>{width}}"
+                text = x[0] if len(x[0]) <= width - 10 else x[0][: width - 13] + "..."
+                return f"{text + f' {x[1]:.4g}':>{width}}"
+
+            print(f"{t:>6}  {cell(a, 34)}  {cell(b, 44)}  {cell(c, 44)}  {' '.join(checks)}")
+        top = [max(r.fidelity for r in x) if x else float("nan") for x in (base, default, long)]
+        print(f"highest fidelity: (a) {top[0]:.6f}  (b) {top[1]:.6f}  (c) {top[2]:.6f}")
+        if coverage_depth:
+            n, missed = coverage(profile, coverage_depth, coverage_width)
+            print(
+                f"deep layer alone (width {coverage_width}) at depth {coverage_depth}: "
+                f"finds {n - len(missed)} of {n} "
+                "exhaustive front points"
+                + (f"; misses {len(missed)}, e.g. {', '.join(missed[:5])}" if missed else "")
+            )
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--depth", type=int, default=6)
@@ -204,7 +366,25 @@ def main(argv=None) -> int:
         default="nsga2,tpe,random",
         help="comma-separated, of nsga2, tpe, random (TPE is the slowest)",
     )
+    parser.add_argument("--targets", action="store_true", help="run section 3 only")
+    parser.add_argument("--profiles", default="", help="comma-separated names (section 3)")
+    parser.add_argument("--long-factor", type=float, default=10.0)
+    parser.add_argument("--skip-long", action="store_true")
+    parser.add_argument("--layers-only", action="store_true")
+    parser.add_argument("--coverage-depth", type=int, default=4)
+    parser.add_argument("--coverage-width", type=int, default=64)
     args = parser.parse_args(argv)
+    if args.targets:
+        names = [n for n in args.profiles.split(",") if n]
+        targets(
+            names,
+            args.long_factor,
+            args.layers_only,
+            args.coverage_depth,
+            args.coverage_width,
+            args.skip_long,
+        )
+        return 0
     if not args.skip_speed:
         speed(args.depth, args.budget, args.jobs)
     if not args.skip_quality:

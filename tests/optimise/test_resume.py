@@ -71,7 +71,7 @@ KILL_MOMENTS = [
     "trial:1",  # a trial just finished
     "trial:30",
     "trial:59",
-    "write:12",  # a front.json while trials run
+    "write:5",  # the front.json after the trials (the deep front leaves them none to write)
     "exhaustive:1:INT",  # Ctrl-C: exit 130, one line, then the same command resumes
     "enqueue:4:INT",
     "ask:20:INT",
