@@ -81,6 +81,11 @@ def enqueue_known(study, notations, max_depth: int, between=None) -> int:
     return len(study.get_trials(deepcopy=False)) - before if count else 0
 
 
+def deep_levels(settings) -> int:
+    """Levels of a search's deep layer: twice the depth cap, at most DEEP_LEVELS_LIMIT."""
+    return min(2 * settings.depth_cap, DEEP_LEVELS_LIMIT)
+
+
 def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
     """The deep layer of a search (:mod:`optimise.deep`), seeded with known recipes.
 
@@ -91,7 +96,7 @@ def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
     """
     return deep_front(
         profile,
-        max_depth=min(2 * settings.depth_cap, DEEP_LEVELS_LIMIT),
+        max_depth=deep_levels(settings),
         max_chain=settings.depth_cap,
         width=DEEP_WIDTH,
         objectives=settings.objectives,

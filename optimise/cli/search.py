@@ -263,10 +263,13 @@ def start_message(run_dir, settings) -> str:
             else "as deep as the automatic cap on evaluations allows"
         )
     )
+    from ..seeding import deep_levels
+
     limits = settings.limits.describe()
+    deep = f"a deep layer of made pairs over {deep_levels(settings)} levels"
     return (
-        f"new search: recipes of 1 to {settings.max_depth} rounds ({layer}, then sampled by "
-        f"{settings.sampler}); objectives {', '.join(settings.objectives)}; {limits}; budget "
-        f"{budget}; writes {run_dir}"
+        f"new search: recipes of 1 to {settings.max_depth} rounds ({layer}, {deep}, then "
+        f"sampled by {settings.sampler}); objectives {', '.join(settings.objectives)}; {limits}; "
+        f"budget {budget}; writes {run_dir}"
     )
 

@@ -56,6 +56,8 @@ def test_the_first_session_runs_as_written(tmp_path):
         outputs.append((command, done.stdout + done.stderr))
     searches = [text for command, text in outputs if " search " in command]
     assert "new search: recipes of 1 to 5 rounds" in searches[0]
+    # the three layers it will run (README "Outputs of a search")
+    assert "a deep layer of made pairs over 10 levels" in " ".join(searches[0].split())
     assert "budget 200 trials; writes runs/demo-metro" in " ".join(searches[0].split())
     assert "resuming runs/demo-metro: 200 of 300 trials done" in searches[1]
     assert "at most 3 qubits per node" in " ".join(searches[2].split())
