@@ -182,7 +182,8 @@ def _status(front) -> str:
     if front.complete:
         return "complete for the searched space"
     if front.complete_depth:
-        return f"complete to depth {front.complete_depth}, sampled beyond"
+        # beyond the exhaustive layer the deep layer and the study search without proof
+        return f"complete to depth {front.complete_depth}, searched beyond (not proven)"
     return "sampled"
 
 
