@@ -114,7 +114,7 @@ def run(args) -> int:
                 + why_canonical(written, result.notation)
             )
         )
-    print_trace(out, recipe, profile, stories)
+    print_trace(out, recipe, profile, stories, result)
     out.print(
         f"output: F = {result.fidelity:.6f}, yield {result.pair_yield:.6g} output pairs per "
         f"raw pair, {result.memory_per_node} memory qubits per node, "
@@ -132,7 +132,7 @@ def spelling(text: str, recipe) -> str:
     return format_recipe(recipe) if ":" in text else text
 
 
-def print_trace(out, recipe, profile, stories) -> None:
+def print_trace(out, recipe, profile, stories, result) -> None:
     """The raw pair, then every step in the order it happens, with why it helps or hurts."""
     from rich.table import Table
 
@@ -156,7 +156,6 @@ def print_trace(out, recipe, profile, stories) -> None:
             f"{story.success_probability:.6f}, state {_weights(story.bell)}"
         )
         out.print(f"{indent}    {story.sentence()}", style="dim")
-    result = evaluate(recipe, profile)
     costs = Table(
         box=None,
         header_style="bold",
