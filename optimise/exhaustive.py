@@ -42,6 +42,7 @@ from models.evaluate import evaluate
 
 from .levels import (
     FIELDS,
+    base_codes,
     concat,
     count_rounds,
     expand_chunk,
@@ -283,45 +284,38 @@ def exhaustive_front(
         "final": False,
         "count": bool(count_last),
     }
-    # the chains carry the waiting data of every round still to come
-    level = start_chains(profile, 1, rounds_ahead=depth_goal)
-    back = []  # per depth: (parent, code) of each kept state
-    # doing nothing is a recipe too: the raw pair itself (depth 0) beats every
-    # recipe that yields less and ends below the raw fidelity
-    raw_values, _ = objective_values(level, objectives)
-    candidates = [(0, np.array([0]), raw_values)]  # (depth, index at that depth, values)
-    states, evaluations = [], []
-    complete_depth = 0
-    for depth in range(1, depth_goal + 1):
-        if max_states is not None and depth > 1 and len(level) > max_states:
+    # with perfect memories the waiting data is one rate whatever the rounds ahead
+    rate_free = start_chains(profile, 1, rounds_ahead=depth_goal).weighted.shape[1] == 1
+    if max_evaluations is None or rate_free:
+        passes = [depth_goal]
+    else:
+        # The chains carry the waiting data of every round still to come, which grows
+        # with the rounds ahead; the evaluation bound decides how deep this call
+        # goes, so carry data for one depth more per pass and deepen only while the
+        # bound allows (each pass costs about 1% of the next: a depth multiplies the
+        # states a hundredfold).
+        passes = range(1, depth_goal + 1)
+    reported = 0
+    for goal in passes:
+        sweep = _sweep(
+            profile, goal, code_set, options, n_jobs, max_states, max_evaluations, count_last
+        )
+        for depth, n_states, n_evaluations, seconds in sweep.reports:
+            if on_depth is not None and depth > reported:
+                on_depth(depth, n_states, n_evaluations, seconds)
+                reported = depth
+        if sweep.complete_depth < goal or goal == depth_goal:
             break
-        if (
-            max_evaluations is not None
-            and depth > 1
-            and count_rounds(level, profile, code_set, options["dedupe"], stop_at=max_evaluations)
-            > max_evaluations
-        ):
-            break
-        options["final"] = depth == depth_goal
-        t0 = time.monotonic()
-        gather = _Gather(options)
-        for out in _expand_level(level, profile, code_set, options, n_jobs):
-            gather.add(out)
-        batch, parent, code, n_states = gather.result()
-        if options["final"] and not count_last:
-            n_states = -1
-        back.append((parent, code))
-        values, maximise = objective_values(batch, objectives)
-        on_front = np.flatnonzero(pareto_mask(quantise(values), maximise))
-        candidates.append((depth, on_front, values[on_front]))
-        states.append(int(n_states))
-        evaluations.append(int(gather.evaluations))
-        complete_depth = depth
-        if on_depth is not None:
-            on_depth(depth, n_states, evaluations[-1], time.monotonic() - t0)
-        level = batch
-        if len(level) == 0:
-            break
+        base, _, _ = base_codes(code_set)
+        if sweep.states[-1] * len(base) > max_evaluations:
+            break  # the next pass would stop before the next depth
+    candidates, back, states, evaluations = (
+        sweep.candidates,
+        sweep.back,
+        sweep.states,
+        sweep.evaluations,
+    )
+    complete_depth = sweep.complete_depth
     results = _front_results(profile, candidates, back, objectives)
     space = describe_linear_space(complete_depth, include_double, restricted=codes is not None)
     return ExhaustiveFront(
@@ -334,6 +328,59 @@ def exhaustive_front(
         symmetry=sym,
         seconds=time.monotonic() - started,
     )
+
+
+@dataclass
+class _Sweep:
+    """One breadth-first pass to ``goal`` depths: front candidates and back-pointers."""
+
+    candidates: list  # (depth, indices at that depth, objective values)
+    back: list  # per depth: (parent, code) of each kept state
+    states: list
+    evaluations: list
+    reports: list  # (depth, states, evaluations, seconds) for on_depth
+    complete_depth: int
+
+
+def _sweep(profile, goal, code_set, options, n_jobs, max_states, max_evaluations, count_last):
+    """Expand depth by depth up to ``goal``, chains carrying the data of ``goal`` rounds."""
+    options = dict(options)
+    objectives = options["objectives"]
+    level = start_chains(profile, 1, rounds_ahead=goal)
+    # doing nothing is a recipe too: the raw pair itself (depth 0) beats every
+    # recipe that yields less and ends below the raw fidelity
+    raw_values, _ = objective_values(level, objectives)
+    out = _Sweep([(0, np.array([0]), raw_values)], [], [], [], [], 0)
+    for depth in range(1, goal + 1):
+        if max_states is not None and depth > 1 and len(level) > max_states:
+            break
+        if (
+            max_evaluations is not None
+            and depth > 1
+            and count_rounds(level, profile, code_set, options["dedupe"], stop_at=max_evaluations)
+            > max_evaluations
+        ):
+            break
+        options["final"] = depth == goal
+        t0 = time.monotonic()
+        gather = _Gather(options)
+        for chunk in _expand_level(level, profile, code_set, options, n_jobs):
+            gather.add(chunk)
+        batch, parent, code, n_states = gather.result()
+        if options["final"] and not count_last:
+            n_states = -1
+        out.back.append((parent, code))
+        values, maximise = objective_values(batch, objectives)
+        on_front = np.flatnonzero(pareto_mask(quantise(values), maximise))
+        out.candidates.append((depth, on_front, values[on_front]))
+        out.states.append(int(n_states))
+        out.evaluations.append(int(gather.evaluations))
+        out.complete_depth = depth
+        out.reports.append((depth, int(n_states), out.evaluations[-1], time.monotonic() - t0))
+        level = batch
+        if len(level) == 0:
+            break
+    return out
 
 
 def _codes_of(depth: int, index: int, back) -> list[int]:

@@ -147,7 +147,7 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
             continue
         result = evaluate(recipe, profile)
         attrs.update(trial_attrs(result))
-        attrs.update({REASK_ATTR: trial.number, WORKER_ATTR: worker, "depth": recipe.depth})
+        attrs.update({REASK_ATTR: trial.number, WORKER_ATTR: worker})
         constraints = trial_constraints(result, limits)
         study.add_trial(
             create_trial(

@@ -13,7 +13,7 @@ A run folder holds
     a cache of the exhaustive layer (:class:`optimise.exhaustive.ExhaustiveFront`);
 ``front.json``
     the current :class:`optimise.front.Front`, rewritten whenever it changes;
-``study.db`` (or another storage) and the report files, at paths :meth:`Run.path` hands out;
+``study.journal`` (or another storage) and the report files, at paths :meth:`Run.path` hands out;
 ``.search.lock``
     while a search runs (:meth:`Run.lock`): the host and process id of the search
     that owns the folder; a second search of the same folder on this machine is

@@ -25,7 +25,6 @@ from optuna.trial import TrialState
 
 from .errors import InputError, RunError
 from .front import BaselineResult, baseline_results
-from .tracker import FrontTracker
 from .limits import Limits
 from .objective import Objective
 from .objectives import directions
@@ -39,6 +38,7 @@ from .settings import SearchSettings
 from .space import is_linear_space
 from .storage import StorageSpec, open_resolved, resolve_storage
 from .targets import TargetAnswer, cheapest_reaching
+from .tracker import FrontTracker
 
 __all__ = ["Limits", "SearchOutcome", "SearchSettings", "run_search", "load_run"]
 
@@ -72,7 +72,7 @@ class SearchOutcome:
     target: TargetAnswer | None
 
 
-def _storage_for(storage, run_dir: Path, workers: int, recorded, note):
+def _storage_for(storage, run_dir: Path, workers: int, recorded):
     """Resolve the storage, honouring the one a run folder already uses (``recorded``)."""
     shared = workers > 1
     if storage is None and recorded is not None:
@@ -84,12 +84,7 @@ def _storage_for(storage, run_dir: Path, workers: int, recorded, note):
             )
         spec = resolve_storage(kept if "/" in kept or ":" in kept else run_dir / kept, run_dir)
     else:
-        spec = resolve_storage(storage, run_dir, shared=shared)
-        if storage is None and shared:
-            note(
-                f"{workers} workers: SQLite serves one process, so the study is kept in the "
-                f"journal file {Path(spec.target).name} in the run folder"
-            )
+        spec = resolve_storage(storage, run_dir)
     if shared and not spec.shared:
         raise InputError(
             f"workers = {workers} needs a storage several processes can share, but the study is "
@@ -150,9 +145,7 @@ def run_search(
         raise TypeError(f"give either settings or its fields, not both ({', '.join(fields)})")
     run = Run(run_dir)
     bar = SearchProgress(settings.n_trials, 0, settings.timeout_s, enabled=progress)
-    spec = _storage_for(
-        settings.storage, run.folder, settings.workers, run.recorded_settings(), bar.note
-    )
+    spec = _storage_for(settings.storage, run.folder, settings.workers, run.recorded_settings())
     settings = settings.replace(storage=_recorded_storage(spec, run.folder))
     run.check_resume(settings, profile.to_dict())  # read-only: refuse before writing anything
     verbosity = optuna.logging.get_verbosity()

@@ -135,7 +135,12 @@ class FrontTracker:
         entry = trial.user_attrs.get("result")
         if state != "COMPLETE" or entry is None:
             return False
-        depth = trial.user_attrs.get("depth") or parse_recipe(entry["recipe"]).depth
+        # studies written before the depth attribute was dropped still carry it
+        depth = (
+            trial.user_attrs.get("depth")
+            or entry.get("rounds")
+            or parse_recipe(entry["recipe"]).depth
+        )
         return self.offer(entry, depth)
 
     def add_trials(self, trials) -> bool:

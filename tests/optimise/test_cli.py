@@ -19,7 +19,7 @@ from optimise.plots import PNG_PIXELS, SVG_POINTS
 from optimise.reports import ASSUMPTIONS, CSV_COLUMNS, REPORT_FILES
 
 SMALL = ("--depth", "3", "--trials", "20", "--no-progress")
-RUN_FILES = ("settings.json", "profile.json", "front.json", "study.db")
+RUN_FILES = ("settings.json", "profile.json", "front.json", "study.journal")
 
 
 def test_help_imports_nothing_heavy():

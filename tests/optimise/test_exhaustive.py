@@ -274,3 +274,24 @@ def test_without_double_selection_and_with_a_state_cap():
         exhaustive_front(profile, max_depth=0)
     assert math.isfinite(capped.seconds)
     assert len(LINEAR_ROUNDS) == N_CODES
+
+
+def test_an_evaluation_bound_with_decaying_memories_carries_only_the_waits_it_needs():
+    """The bound stops at some depth; the front there is the unbounded front of that depth.
+
+    With decaying memories a call under an evaluation bound deepens pass by pass,
+    each carrying the waiting data of one more round; what it returns must be the
+    exact front of the depth it reached, figure for figure (checked against the
+    single-recipe evaluator inside exhaustive_front as well).
+    """
+    profile = PROFILES["memory-noisy-rotations"]
+    depths = []
+    bounded = exhaustive_front(
+        profile, max_depth=5, max_evaluations=30_000, on_depth=lambda d, *_: depths.append(d)
+    )
+    reached = bounded.complete_depth
+    assert 1 <= reached < 5 and not bounded.complete
+    assert depths == list(range(1, reached + 1))  # each depth reported once
+    plain = exhaustive_front(profile, max_depth=reached)
+    assert front_points(bounded) == front_points(plain)
+    assert bounded.states_per_depth == plain.states_per_depth

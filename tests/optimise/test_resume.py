@@ -45,7 +45,9 @@ def trials_of(run_dir):
 
 def complete_sequence(trials):
     return [
-        (t.user_attrs["recipe"], tuple(t.values)) for t in trials if t.state == TrialState.COMPLETE
+        (t.user_attrs["result"]["recipe"], tuple(t.values))
+        for t in trials
+        if t.state == TrialState.COMPLETE
     ]
 
 
@@ -133,7 +135,7 @@ def test_a_kill_at_any_moment_resumes_to_the_uninterrupted_result(tmp_path, cli_
     else:
         assert killed.returncode == -signal.SIGKILL, killed.stderr
     run_dir = tmp_path / "runs" / "k"
-    if (run_dir / "study.db").exists():
+    if (run_dir / "study.journal").exists():
         before = trials_of(run_dir)
         if moment.endswith(":INT"):  # a Ctrl-C leaves no trial running
             assert not [t for t in before if t.state == TrialState.RUNNING]

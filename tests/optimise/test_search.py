@@ -61,6 +61,12 @@ def study_of(run_dir, storage=None):
     return optuna.load_study(study_name=f"stillroom-{run_dir.name}", storage=storage)
 
 
+def recipe_of(trial):
+    """A trial's recipe: in its result, or (a repeat, not evaluated) its own attribute."""
+    result = trial.user_attrs.get("result")
+    return result["recipe"] if result is not None else trial.user_attrs["recipe"]
+
+
 def points(entries):
     return np.array([[e["fidelity"], e["yield"]] for e in entries])
 
@@ -70,7 +76,7 @@ def test_run_folder_front_and_trials(tmp_path):
     out = run_search(
         PROFILE, run_dir=run_dir, max_depth=3, n_trials=30, exhaustive_depth=2, progress=False
     )
-    for name in ("settings.json", "profile.json", "study.db", "front.json", "exhaustive.json"):
+    for name in ("settings.json", "profile.json", "study.journal", "front.json", "exhaustive.json"):
         assert (run_dir / name).exists(), name
     data = json.loads((run_dir / "front.json").read_text())  # the file's own layout
     assert set(data) == FRONT_KEYS
@@ -108,8 +114,10 @@ def test_run_folder_front_and_trials(tmp_path):
     trials = [t for t in study.trials if t.state.name == "COMPLETE"]
     assert len(trials) == 30
     for t in trials:
-        assert t.user_attrs["recipe"] == t.user_attrs["result"]["recipe"]
-        assert evaluate(t.user_attrs["recipe"], PROFILE).fidelity == pytest.approx(t.values[0])
+        # one record per figure set: the id drawn and the result evaluated agree
+        assert t.user_attrs["recipe_id"] == t.user_attrs["result"]["id"]
+        recipe = t.user_attrs["result"]["recipe"]
+        assert evaluate(recipe, PROFILE).fidelity == pytest.approx(t.values[0])
     ex = exhaustive_front(PROFILE, max_depth=2)
     pool = [t.user_attrs["result"] for t in trials] + [r.to_dict() for r in ex.results]
     front = points(data["front"])
@@ -165,7 +173,7 @@ def test_same_seed_same_trials_other_seed_other_trials(tmp_path):
             storage=storage,
             progress=False,
         )
-        return [t.user_attrs["recipe"] for t in study_of(run_dir, storage).trials]
+        return [recipe_of(t) for t in study_of(run_dir, storage).trials]
 
     a, b, c = recipes("a", 7), recipes("b", 7), recipes("c", 8)
     assert a == b
@@ -341,7 +349,6 @@ def test_two_local_workers_share_one_journal_study(tmp_path, capsys):
         exhaustive_depth=1,
         progress=False,
     )
-    assert "journal" in capsys.readouterr().err  # the switch from SQLite is announced
     assert (run_dir / "study.journal").exists() and not (run_dir / "study.db").exists()
     trials = study_of(run_dir, run_dir / "study.journal").trials
     numbers = [t.number for t in trials]
@@ -387,3 +394,14 @@ def test_space_parameters_round_trip_recipes():
     # so is a recipe that twirls its raw pairs (models.notation's leading '~')
     for text in ("~sZ~^2", "sY.pY(~raw)", "sY.pY(~sY)"):
         assert recipe_params(parse_recipe(text), 4) is None, text
+
+
+def test_a_run_folder_kept_in_sqlite_resumes_there(tmp_path):
+    """Run folders made when SQLite was the default go on in their study.db."""
+    run_dir = tmp_path / "older"
+    common = dict(max_depth=2, exhaustive_depth=1, progress=False)
+    run_search(PROFILE, run_dir=run_dir, n_trials=8, storage=run_dir / "study.db", **common)
+    out = run_search(PROFILE, run_dir=run_dir, n_trials=12, **common)
+    assert out.n_trials_total == 12 and out.n_trials_this_run == 4
+    assert not (run_dir / "study.journal").exists()
+    assert json.loads((run_dir / "settings.json").read_text())["storage"] == "study.db"

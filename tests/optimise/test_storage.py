@@ -17,7 +17,7 @@ from optimise.storage import mask_password, open_storage, resolve_storage
 @pytest.mark.parametrize(
     "spec, kind",
     [
-        (None, "sqlite"),
+        (None, "journal"),
         ("runs/x/study.db", "sqlite"),
         ("other.sqlite", "sqlite"),
         ("sqlite:///some/where.db", "sqlite"),
@@ -32,11 +32,9 @@ def test_each_form_resolves_to_its_kind(tmp_path, spec, kind):
     assert resolve_storage(spec, tmp_path).kind == kind
 
 
-def test_defaults_live_in_the_run_folder(tmp_path):
-    assert resolve_storage(None, tmp_path).target == str((tmp_path / "study.db").resolve())
-    shared = resolve_storage(None, tmp_path, shared=True)
-    assert shared.kind == "journal" and shared.target.endswith("study.journal")
-    assert not resolve_storage(None, tmp_path).shared and shared.shared
+def test_the_default_is_a_journal_file_in_the_run_folder(tmp_path):
+    default = resolve_storage(None, tmp_path)
+    assert default.target == str((tmp_path / "study.journal").resolve()) and default.shared
 
 
 @pytest.mark.parametrize(
@@ -54,7 +52,7 @@ def test_passwords_never_shown():
 
 
 def test_opened_storages_hold_a_study(tmp_path):
-    sqlite = open_storage(None, tmp_path)
+    sqlite = open_storage(tmp_path / "study.db", tmp_path)
     assert isinstance(sqlite, optuna.storages.RDBStorage)
     journal = open_storage(tmp_path / "j.log", tmp_path)
     assert isinstance(journal, optuna.storages.JournalStorage)
@@ -77,3 +75,21 @@ def test_unreachable_server_is_a_clear_error(tmp_path):
     # a port nothing listens on (loopback only)
     with pytest.raises(InputError, match="cannot open storage"):
         open_storage("postgresql://u:pw@127.0.0.1:9/none", tmp_path)
+
+
+def test_the_journal_without_per_record_sync_is_optunas_own_format(tmp_path):
+    """Records appended without a disk sync read back through optuna's own backend.
+
+    The format is optuna's JournalFileBackend (one JSON record a line); only the
+    sync after each append is left out, which changes nothing another process reads.
+    """
+    path = tmp_path / "j.journal"
+    ours = open_storage(path, tmp_path)
+    study = optuna.create_study(
+        storage=ours, study_name="s", sampler=optuna.samplers.RandomSampler(seed=1)
+    )
+    study.optimize(lambda t: t.suggest_float("x", 0, 1), n_trials=4)
+    plain = optuna.storages.JournalStorage(optuna.storages.journal.JournalFileBackend(str(path)))
+    again = optuna.load_study(study_name="s", storage=plain)
+    assert [t.params for t in again.trials] == [t.params for t in study.trials]
+    assert path.read_bytes().endswith(b"\n")
