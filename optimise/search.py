@@ -24,6 +24,7 @@ import optuna
 from optuna.trial import TrialState
 
 from .errors import InputError, RunError
+from .explore import explore_front
 from .front import BaselineResult, baseline_results
 from .limits import Limits
 from .objective import Objective
@@ -350,14 +351,22 @@ def worker_offset(study, me: dict) -> int:
     return sum(1 for w in others if w.get("host") != here or is_running(w))
 
 
+def _explore(study, settings, tracker) -> None:
+    """Queue neighbours of the current front when due (see :mod:`optimise.explore`)."""
+    notations = [e["recipe"] for e in tracker.entries()]
+    explore_front(study, notations, settings.depth_cap, len(tracker.finished))
+
+
 def _optimize_here(study, profile, settings, spec, left, tracker, bar, stop):
     if spec.shared:
         offset = worker_offset(study, worker_identity())
         study.sampler = SlotSeededSampler(settings.sampler_settings, worker=offset)
+    _explore(study, settings, tracker)  # a run resumed just after a due point
 
     def after(study, trial):
         if tracker.add_trial(trial):
             tracker.write(None)
+        _explore(study, settings, tracker)
         bar.update(bar.done + 1, tracker.best_fidelity(), tracker.size())
 
     study.optimize(
@@ -448,6 +457,7 @@ def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
             trials = monitor.get_trials(deepcopy=False)
             if tracker.add_trials(trials):
                 tracker.write(None)
+            _explore(monitor, settings, tracker)
             bar.update(finished_count(monitor), tracker.best_fidelity(), tracker.size())
     finally:
         stop_event.set()
