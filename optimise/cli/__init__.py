@@ -16,13 +16,13 @@ from __future__ import annotations
 
 import sys
 
-from . import compare, evaluate, profile, search, sweep, table, verify
+from . import catalogue, compare, evaluate, profile, search, sweep, table, verify
 from .common import Formatter, Parser, UsageError, parse_duration
 from .evaluate import RECIPE_HELP, resolve_recipe
 
 __all__ = ["main", "build_parser", "parse_duration", "resolve_recipe", "RECIPE_HELP"]
 
-COMMANDS = (profile, search, evaluate, compare, sweep, table, verify)
+COMMANDS = (profile, search, evaluate, compare, sweep, table, verify, catalogue)
 
 MAIN_HELP = """\
 Search entanglement-purification recipes for noisy Bell pairs.

@@ -59,6 +59,14 @@ SEARCH_CASES += [
     ["table"],
     ["table", "runs/none"],
     ["profile", "missing.toml"],
+    ["catalogue", "--pairs", "1"],
+    ["catalogue", "--pairs", "6"],
+    ["catalogue", "--pairs", "four"],
+    ["catalogue", "--cnots", "0"],
+    ["catalogue", "--cnots", "9"],
+    ["catalogue", "--top", "-1"],
+    ["catalogue", "--cache", ""],
+    ["catalogue", "missing.toml"],
     ["evaluate", "sY", "missing.toml"],
     ["evaluate", "demo.toml", "sY"],  # the wrong order
     [],  # no command: help on stderr, exit 2

@@ -149,3 +149,40 @@ def test_a_purified_kept_input_gets_its_own_catalogue(tmp_path):
     load_or_build(3, 2, pair=PAIR, directory=tmp_path, **NOISE)
     load_or_build(3, 2, pair=PAIR, kept_pair=kept, directory=tmp_path, **NOISE)
     assert len(list(tmp_path.glob("rounds-n3-g2-*.json"))) == 2
+
+
+def test_the_catalogue_command_builds_then_reads_the_cache(tmp_path, capsys):
+    """``stillroom catalogue``: the front of rounds, cached; its JSON follows the schema."""
+    import json
+
+    from cli_support import validate
+
+    from models.evaluate import evaluate
+    from optimise.cli import main
+    from optimise.profiles import demo_profile
+
+    argv = ["catalogue", "--pairs", "3", "--cnots", "2", "--cache", str(tmp_path), "--json"]
+    assert main(argv) == 0
+    first = json.loads(capsys.readouterr().out)
+    validate(first, "catalogue")
+    assert first["cached"] is False and first["before"] >= first["after"] >= len(first["entries"])
+    assert main(argv) == 0
+    again = json.loads(capsys.readouterr().out)
+    assert again["cached"] is True and again["entries"] == first["entries"]
+    # every printed round is a recipe token evaluate accepts; with the demo's gates and
+    # measurements but perfect memories (no waits) its figures are the catalogue's
+    from models.noise import NodeNoise
+    from models.profile import Profile
+
+    demo = demo_profile().noise
+    still = Profile(
+        demo_profile().raw_pair,
+        NodeNoise(two_qubit=demo.two_qubit, measurement=demo.measurement),
+    )
+    for entry in first["entries"]:
+        result = evaluate("c{" + entry["form"] + "}", still)
+        assert_allclose(result.success_probabilities[0], entry["success"], atol=1e-12)
+        assert_allclose(result.fidelity, entry["fidelity"], atol=1e-12)
+    assert main(argv[:-1]) == 0
+    text = capsys.readouterr().out
+    assert "read from the cache" in text and "c{" + first["entries"][0]["form"] + "}" in text
