@@ -295,15 +295,18 @@ def exhaustive_front(
         # bound allows (each pass costs about 1% of the next: a depth multiplies the
         # states a hundredfold).
         passes = range(1, depth_goal + 1)
-    reported = 0
+    reported = [0]
+
+    def report(depth, n_states, n_evaluations, seconds):
+        if on_depth is not None and depth > reported[0]:  # each depth once, as it is reached
+            on_depth(depth, n_states, n_evaluations, seconds)
+        reported[0] = max(reported[0], depth)
+
     for goal in passes:
         sweep = _sweep(
-            profile, goal, code_set, options, n_jobs, max_states, max_evaluations, count_last
-        )
-        for depth, n_states, n_evaluations, seconds in sweep.reports:
-            if on_depth is not None and depth > reported:
-                on_depth(depth, n_states, n_evaluations, seconds)
-                reported = depth
+            profile, goal, code_set, options, n_jobs, max_states, max_evaluations, count_last,
+            report,
+        )  # fmt: skip
         if sweep.complete_depth < goal or goal == depth_goal:
             break
         base, _, _ = base_codes(code_set)
@@ -338,11 +341,12 @@ class _Sweep:
     back: list  # per depth: (parent, code) of each kept state
     states: list
     evaluations: list
-    reports: list  # (depth, states, evaluations, seconds) for on_depth
     complete_depth: int
 
 
-def _sweep(profile, goal, code_set, options, n_jobs, max_states, max_evaluations, count_last):
+def _sweep(
+    profile, goal, code_set, options, n_jobs, max_states, max_evaluations, count_last, report
+):
     """Expand depth by depth up to ``goal``, chains carrying the data of ``goal`` rounds."""
     options = dict(options)
     objectives = options["objectives"]
@@ -350,7 +354,7 @@ def _sweep(profile, goal, code_set, options, n_jobs, max_states, max_evaluations
     # doing nothing is a recipe too: the raw pair itself (depth 0) beats every
     # recipe that yields less and ends below the raw fidelity
     raw_values, _ = objective_values(level, objectives)
-    out = _Sweep([(0, np.array([0]), raw_values)], [], [], [], [], 0)
+    out = _Sweep([(0, np.array([0]), raw_values)], [], [], [], 0)
     for depth in range(1, goal + 1):
         if max_states is not None and depth > 1 and len(level) > max_states:
             break
@@ -376,7 +380,7 @@ def _sweep(profile, goal, code_set, options, n_jobs, max_states, max_evaluations
         out.states.append(int(n_states))
         out.evaluations.append(int(gather.evaluations))
         out.complete_depth = depth
-        out.reports.append((depth, int(n_states), out.evaluations[-1], time.monotonic() - t0))
+        report(depth, int(n_states), out.evaluations[-1], time.monotonic() - t0)
         level = batch
         if len(level) == 0:
             break
