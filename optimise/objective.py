@@ -15,7 +15,7 @@ from models.evaluate import evaluate
 from .limits import Limits
 from .objectives import objective_values
 from .processes import checkpoint, worker_identity
-from .samplers import ERROR_ATTR
+from .samplers import ERROR_ATTR, SettledPrefix
 from .space import suggest_recipe
 
 WORKER_ATTR = "worker"
@@ -79,31 +79,26 @@ class Objective:
 class TakenRecipes:
     """Which trial has (or is evaluating, at a lower number) a recipe, found incrementally.
 
-    Trials are numbered in the order they were asked, and a finished trial stays
-    as it is; so the finished prefix of the trial list is indexed once (recipe id
-    -> first complete trial) and only the trials after it, those still running
-    and the few asked since, are looked at again. A trial's check then costs
-    about as much after 20,000 trials as after 20, where a scan of every trial
-    grew with the study.
+    The finished prefix of the trial list is indexed once (recipe id -> first
+    complete trial, :class:`optimise.samplers.SettledPrefix`) and only the trials
+    after it are looked at again, where a scan of every trial grew with the study.
     """
 
     def __init__(self):
         self.complete: dict[str, int] = {}
-        self.settled = 0  # trials [0, settled) are finished and indexed
+        self.prefix = SettledPrefix(self._settle)
+
+    def _settle(self, trial) -> None:
+        if trial.state == TrialState.COMPLETE:
+            self.complete.setdefault(trial.user_attrs.get("recipe_id"), trial.number)
 
     def first(self, study, recipe_id: str, number: int) -> int | None:
         """The trial number holding ``recipe_id`` other than ``number``, or None."""
-        trials = study.get_trials(deepcopy=False)
-        i = self.settled
-        while i < len(trials) and trials[i].state.is_finished():
-            if trials[i].state == TrialState.COMPLETE:
-                self.complete.setdefault(trials[i].user_attrs.get("recipe_id"), trials[i].number)
-            i += 1
-        self.settled = i
+        rest = self.prefix.rest(study)
         found = self.complete.get(recipe_id)
         if found is not None and found != number:
             return found
-        for other in trials[i:]:
+        for other in rest:
             if other.number == number or other.user_attrs.get("recipe_id") != recipe_id:
                 continue
             if other.state == TrialState.COMPLETE or (

@@ -55,19 +55,60 @@ def build_sampler(settings: dict, seed: int) -> BaseSampler:
     return optuna.samplers.RandomSampler(seed=seed)
 
 
+def counts_towards_budget(trial) -> bool:
+    """Complete, pruned, or failed by the objective (a trial whose process died is not)."""
+    if trial.state == TrialState.FAIL:
+        return ERROR_ATTR in trial.user_attrs
+    return trial.state in (TrialState.COMPLETE, TrialState.PRUNED)
+
+
 def finished_count(study) -> int:
     """Trials that count towards the budget: complete, pruned, or failed by the objective.
 
     A trial failed because its process died (no ``error`` attribute) does not count:
     its recipe is asked again on resume.
     """
-    count = 0
-    for trial in study.get_trials(
-        deepcopy=False, states=(TrialState.COMPLETE, TrialState.PRUNED, TrialState.FAIL)
-    ):
-        if trial.state != TrialState.FAIL or ERROR_ATTR in trial.user_attrs:
-            count += 1
-    return count
+    return sum(1 for t in study.get_trials(deepcopy=False) if counts_towards_budget(t))
+
+
+class SettledPrefix:
+    """Walks a study's trial list once: trials before the first unfinished one are settled.
+
+    Trials are numbered in the order they were asked and a finished trial never
+    changes, so each settled trial is handed to ``on_settled`` exactly once and
+    later calls look only at the rest (the trials running, waiting in the queue,
+    or asked since). What a per-trial check costs then stops growing with the study
+    (but for optuna's own list of trials, which it builds for each call).
+    """
+
+    def __init__(self, on_settled):
+        self.on_settled = on_settled
+        self.settled = 0
+
+    def rest(self, study) -> list:
+        """The trials after the settled prefix, after settling what has finished since."""
+        trials = study.get_trials(deepcopy=False)
+        i = self.settled
+        while i < len(trials) and trials[i].state.is_finished():
+            self.on_settled(trials[i])
+            i += 1
+        self.settled = i
+        return trials[i:]
+
+
+class FinishedCount:
+    """:func:`finished_count`, kept up to date incrementally (see :class:`SettledPrefix`)."""
+
+    def __init__(self):
+        self.settled_count = 0
+        self.prefix = SettledPrefix(self._settle)
+
+    def _settle(self, trial) -> None:
+        self.settled_count += counts_towards_budget(trial)
+
+    def __call__(self, study) -> int:
+        rest = self.prefix.rest(study)
+        return self.settled_count + sum(1 for t in rest if counts_towards_budget(t))
 
 
 def slot_seed(seed: int, worker: int, slot: int) -> int:
@@ -113,10 +154,11 @@ class SlotSeededSampler(BaseSampler):
         self.settings = dict(settings)
         self.worker = int(worker)
         self.last_slot = None
+        self.finished = FinishedCount()
         self._inner = build_sampler(self.settings, slot_seed(self.settings["seed"], self.worker, 0))
 
     def before_trial(self, study, trial):
-        self.last_slot = finished_count(study)
+        self.last_slot = self.finished(study)
         seed = slot_seed(self.settings["seed"], self.worker, self.last_slot)
         if not reseed(self._inner, seed):  # an optuna whose samplers hold their state elsewhere
             self._inner = build_sampler(self.settings, seed)

@@ -353,8 +353,11 @@ def worker_offset(study, me: dict) -> int:
 
 def _explore(study, settings, tracker) -> None:
     """Queue neighbours of the current front when due (see :mod:`optimise.explore`)."""
+    finished = len(tracker.finished)
+    if finished >= settings.n_trials:
+        return  # the budget is spent: nothing queued that no trial would run
     notations = [e["recipe"] for e in tracker.entries()]
-    explore_front(study, notations, settings.depth_cap, len(tracker.finished))
+    explore_front(study, notations, settings.depth_cap, finished)
 
 
 def _optimize_here(study, profile, settings, spec, left, tracker, bar, stop):

@@ -62,9 +62,12 @@ def study_of(run_dir, storage=None):
 
 
 def recipe_of(trial):
-    """A trial's recipe: in its result, or (a repeat, not evaluated) its own attribute."""
+    """A trial's recipe: in its result, or (a repeat, not evaluated) its own attribute.
+
+    None for a trial still waiting in the queue (a recipe queued around the front).
+    """
     result = trial.user_attrs.get("result")
-    return result["recipe"] if result is not None else trial.user_attrs["recipe"]
+    return result["recipe"] if result is not None else trial.user_attrs.get("recipe")
 
 
 def points(entries):
