@@ -7,7 +7,15 @@ from pathlib import Path
 
 from ..objectives import DEFAULT as DEFAULT_OBJECTIVES
 from ..objectives import OBJECTIVES
-from ..settings import MAX_DEPTH_LIMIT, SAMPLERS
+from ..settings import (
+    DEEP_LAYERS,
+    DEEP_LEVELS_LIMIT,
+    DEEP_WIDTH,
+    DEEP_WIDTH_LIMIT,
+    MAX_DEPTH_LIMIT,
+    SAMPLERS,
+    SearchSettings,
+)
 from . import common
 
 NAME = "search"
@@ -78,8 +86,7 @@ def add_parser(sub, parents) -> None:
         type=common.objectives,
         default=DEFAULT_OBJECTIVES,
         metavar="LIST",
-        help=f"{','.join(DEFAULT_OBJECTIVES)}{optional} "
-        f"(default: {','.join(DEFAULT_OBJECTIVES)})",
+        help=f"{','.join(DEFAULT_OBJECTIVES)}{optional} (default: {','.join(DEFAULT_OBJECTIVES)})",
     )
     common.add_limit_options(p)
     p.add_argument(
@@ -88,6 +95,37 @@ def add_parser(sub, parents) -> None:
         metavar="D",
         help="first evaluate every linear recipe to depth D exactly "
         "(default: the search layer's choice)",
+    )
+    deep = p.add_argument_group(
+        "deep layer",
+        common.wrap(
+            "After the exhaustive layer, trees of made pairs are grown level by level, keeping at "
+            "each level only the pairs on the first Pareto layers, at most a width of them. Its "
+            "time grows roughly as the width squared times the levels: the defaults take about "
+            "15 s of the demo's minute; an overnight run can afford --deep-width 64 or more. "
+            "A resumed run must repeat these values."
+        ),
+    )
+    deep.add_argument(
+        "--deep-width",
+        type=common.whole_number_at_least(0, DEEP_WIDTH_LIMIT),
+        default=DEEP_WIDTH,
+        metavar="W",
+        help="pairs kept per level; 0 for no cap, slow (default: %(default)s)",
+    )
+    deep.add_argument(
+        "--deep-layers",
+        type=common.whole_number_at_least(0, DEEP_WIDTH_LIMIT),
+        default=DEEP_LAYERS,
+        metavar="K",
+        help="Pareto layers kept per level; 0 for all, within the width (default: %(default)s)",
+    )
+    deep.add_argument(
+        "--deep-levels",
+        type=common.whole_number_at_least(0, DEEP_LEVELS_LIMIT),
+        metavar="L",
+        help=f"levels of made pairs; 0 for no deep layer (default: twice --depth, "
+        f"at most {DEEP_LEVELS_LIMIT})",
     )
     p.add_argument(
         "--storage",
@@ -116,18 +154,10 @@ def add_parser(sub, parents) -> None:
     p.set_defaults(handler=run)
 
 
-# the option that sets each SearchSettings field, so that an error names what the user typed
+# the option that sets each SearchSettings field (and each limit), so that an error
+# names what the user typed
 OPTION_OF_FIELD = {
-    "max_depth": "--depth",
-    "objectives": "--objectives",
-    "exhaustive_depth": "--exhaustive-depth",
-    "seed": "--seed",
-    "sampler": "--sampler",
-    "storage": "--storage",
-    "n_trials": "--trials",
-    "timeout_s": "--time",
-    "workers": "--workers",
-    "target_fidelity": "--target",
+    **SearchSettings.options(),
     "max_memory_per_node": "--max-memory",
     "max_time_per_output_s": "--max-time-per-output",
 }
@@ -141,7 +171,6 @@ def settings_from(args):
     import re
 
     from ..errors import InputError
-    from ..settings import SearchSettings
 
     try:
         return SearchSettings(
@@ -149,6 +178,9 @@ def settings_from(args):
             objectives=args.objectives,
             limits=common.limits(args),
             exhaustive_depth=args.exhaustive_depth,
+            deep_width=args.deep_width,
+            deep_layers=args.deep_layers,
+            deep_levels=args.deep_levels,
             seed=args.seed,
             sampler=args.sampler,
             storage=args.storage,
@@ -266,10 +298,17 @@ def start_message(run_dir, settings) -> str:
     from ..seeding import deep_levels
 
     limits = settings.limits.describe()
-    deep = f"a deep layer of made pairs over {deep_levels(settings)} levels"
+    levels = deep_levels(settings)
+    width = f"width {settings.deep_width}" if settings.deep_width else "no width cap"
+    layers = settings.deep_layers
+    kept = f"{common.count(layers, 'Pareto layer')}" if layers else "every Pareto layer"
+    deep = (
+        f"a deep layer of made pairs over {levels} levels ({width}, {kept})"
+        if levels
+        else "no deep layer"
+    )
     return (
         f"new search: recipes of 1 to {settings.max_depth} rounds ({layer}, {deep}, then "
         f"sampled by {settings.sampler}); objectives {', '.join(settings.objectives)}; {limits}; "
         f"budget {budget}; writes {run_dir}"
     )
-
