@@ -223,6 +223,9 @@ def run(args) -> int:
         print(INTERRUPTED, file=sys.stderr)
         return 130
     written = write_reports(run_dir, top=args.top, targets=args.targets)
+    from ..run import Run
+
+    front = Run(run_dir).read_front()
     if args.json:
         common.print_json(
             {
@@ -233,7 +236,7 @@ def run(args) -> int:
                 "n_trials_total": outcome.n_trials_total,
                 "n_trials_this_run": outcome.n_trials_this_run,
                 "complete_depth": outcome.complete_depth,
-                "front": [r.to_dict() for r in outcome.front],
+                "front": [front.entry(r) for r in front.results],
                 "baselines": [b.to_dict() for b in outcome.baselines],
                 "target": None if outcome.target is None else outcome.target.to_dict(),
                 "files": [str(p) for p in written],
@@ -249,10 +252,9 @@ def run(args) -> int:
             else ""
         )
     )
-    from ..run import Run
     from .table import print_tables
 
-    print_tables(out, Run(run_dir).read_front(), top=args.top, targets=args.targets)
+    print_tables(out, front, top=args.top, targets=args.targets)
     if outcome.target is not None:
         out.print()
         out.print(

@@ -86,9 +86,7 @@ def test_every_setting_with_an_option_is_mapped_to_it(capsys):
 
 
 def test_the_searched_space_names_the_deep_layer_s_settings(tmp_path):
-    run_search(
-        PROFILE, run_dir=tmp_path / "r", deep_width=3, deep_layers=1, deep_levels=2, **SMALL
-    )
+    run_search(PROFILE, run_dir=tmp_path / "r", deep_width=3, deep_layers=1, deep_levels=2, **SMALL)
     front = json.loads((tmp_path / "r" / "front.json").read_text())
     assert "trees of up to 2 levels" in front["searched_space"]
     assert "keeping the pairs on the Pareto front, at most 3 per level" in front["searched_space"]
