@@ -49,7 +49,8 @@ ROLES = ("study", "run", "budget")
 DEEP_WIDTH = 8
 DEEP_LAYERS = 2
 DEEP_LEVELS_LIMIT = 12
-# a width of 256 takes hours on the demo, and its candidate arrays about 1 GB
+# a width of 256 would take some hours on the demo and a few GB of memory (width 64
+# took 17 min and 0.4 GB on a shared 2-core machine; both grow about as the width squared)
 DEEP_WIDTH_LIMIT = 256
 
 

@@ -102,31 +102,42 @@ def add_parser(sub, parents) -> None:
             "After the exhaustive layer, trees of made pairs are grown level by level, keeping at "
             "each level only the pairs on the first Pareto layers, at most a width of them. Its "
             "time grows roughly as the width squared times the levels: the defaults take about "
-            "15 s of the demo's minute; an overnight run can afford --deep-width 64 or more. "
+            "15 s of the demo's minute, --deep-width 64 takes a quarter of an hour there and 128 "
+            "about an hour (an overnight run). "
             "A resumed run must repeat these values."
         ),
     )
-    deep.add_argument(
-        "--deep-width",
-        type=common.whole_number_at_least(0, DEEP_WIDTH_LIMIT),
-        default=DEEP_WIDTH,
-        metavar="W",
-        help="pairs kept per level; 0 for no cap, slow (default: %(default)s)",
-    )
-    deep.add_argument(
-        "--deep-layers",
-        type=common.whole_number_at_least(0, DEEP_WIDTH_LIMIT),
-        default=DEEP_LAYERS,
-        metavar="K",
-        help="Pareto layers kept per level; 0 for all, within the width (default: %(default)s)",
-    )
-    deep.add_argument(
-        "--deep-levels",
-        type=common.whole_number_at_least(0, DEEP_LEVELS_LIMIT),
-        metavar="L",
-        help=f"levels of made pairs; 0 for no deep layer (default: twice --depth, "
-        f"at most {DEEP_LEVELS_LIMIT})",
-    )
+    for option, high, default, metavar, text in (
+        (
+            "--deep-width",
+            DEEP_WIDTH_LIMIT,
+            DEEP_WIDTH,
+            "W",
+            "pairs kept per level; 0 for no cap, slow",
+        ),
+        (
+            "--deep-layers",
+            DEEP_WIDTH_LIMIT,
+            DEEP_LAYERS,
+            "K",
+            "Pareto layers kept per level; 0 for all, within the width",
+        ),
+        (
+            "--deep-levels",
+            DEEP_LEVELS_LIMIT,
+            None,
+            "L",
+            f"levels of made pairs; 0 for no deep layer (default: twice --depth, at most "
+            f"{DEEP_LEVELS_LIMIT})",
+        ),
+    ):
+        deep.add_argument(
+            option,
+            type=common.whole_number_at_least(0, high),
+            default=default,
+            metavar=metavar,
+            help=text + (" (default: %(default)s)" if default is not None else ""),
+        )
     p.add_argument(
         "--storage",
         metavar="URL",

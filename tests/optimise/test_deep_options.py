@@ -86,7 +86,8 @@ def test_every_setting_with_an_option_is_mapped_to_it(capsys):
 
 
 def test_the_searched_space_names_the_deep_layer_s_settings(tmp_path):
-    run_search(PROFILE, run_dir=tmp_path / "r", deep_width=3, deep_layers=1, deep_levels=2, **SMALL)
+    deep = dict(deep_width=3, deep_layers=1, deep_levels=2)
+    run_search(PROFILE, run_dir=tmp_path / "r", **deep, **SMALL)
     front = json.loads((tmp_path / "r" / "front.json").read_text())
     assert "trees of up to 2 levels" in front["searched_space"]
     assert "keeping the pairs on the Pareto front, at most 3 per level" in front["searched_space"]
@@ -94,17 +95,8 @@ def test_the_searched_space_names_the_deep_layer_s_settings(tmp_path):
     assert (settings["deep_width"], settings["deep_layers"], settings["deep_levels"]) == (3, 1, 2)
     # a resume must repeat them: the deep layer is computed again and changes the front
     with pytest.raises(RunError, match=r"deep_width = 3.*deep_width = 4.*--name"):
-        run_search(
-            PROFILE, run_dir=tmp_path / "r", deep_width=4, deep_layers=1, deep_levels=2, **SMALL
-        )
-    again = run_search(
-        PROFILE,
-        run_dir=tmp_path / "r",
-        deep_width=3,
-        deep_layers=1,
-        deep_levels=2,
-        **{**SMALL, "n_trials": 6},
-    )
+        run_search(PROFILE, run_dir=tmp_path / "r", **{**deep, "deep_width": 4}, **SMALL)
+    again = run_search(PROFILE, run_dir=tmp_path / "r", **deep, **{**SMALL, "n_trials": 6})
     assert again.n_trials_total == 6
 
 
