@@ -119,18 +119,29 @@ class DeepFront:
 
 
 def describe_deep_space(depth: int, layers: int, width: int) -> str:
-    """One sentence naming the deep layer's search."""
-    kept = (
-        "every pair"
-        if not width and not layers
-        else (
-            f"the pairs on the first {layers} Pareto layers"
-            + (f", at most {width}" if width else "")
+    """One sentence naming the deep layer's search.
+
+    Examples
+    --------
+    >>> describe_deep_space(10, 2, 8).split("keeping ")[1]
+    'the pairs on the first 2 Pareto layers, at most 8 per level'
+    >>> describe_deep_space(4, 0, 16).split("keeping ")[1]
+    'at most 16 pairs per level, taken Pareto layer by Pareto layer'
+    """
+    if layers:
+        kept = "the pairs on " + (
+            f"the first {layers} Pareto layers" if layers > 1 else "the Pareto front"
         )
-    )
+        kept += (f", at most {width}" if width else "") + " per level"
+    else:
+        kept = (
+            f"at most {width} pairs per level, taken Pareto layer by Pareto layer"
+            if width
+            else "every pair"
+        )
     return (
         f"trees of up to {depth} levels built from made pairs (pumping with raw pairs, "
-        f"copies or other made pairs, every rotation), keeping {kept} per level"
+        f"copies or other made pairs, every rotation), keeping {kept}"
     )
 
 

@@ -76,6 +76,25 @@ def baseline_results(profile, max_depth: int) -> list[BaselineResult]:
     ]
 
 
+def equivalents_from(entries) -> dict:
+    """:attr:`Front.equivalents` from ``front.json``'s entries (written before they were
+    listed, an entry has none).
+
+    Raises
+    ------
+    ValueError
+        When an entry's ``equivalents`` is not a list of strings.
+    """
+    out = {}
+    for entry in entries:
+        names = entry.get("equivalents") or []
+        if not isinstance(names, list) or not all(isinstance(n, str) for n in names):
+            raise ValueError(f"the equivalents of {entry.get('recipe')!r} are not recipe strings")
+        if names:
+            out[entry["recipe"]] = tuple(names)
+    return out
+
+
 def target_from_dict(data: dict | None):
     """A :class:`optimise.targets.TargetAnswer` from its ``to_dict()`` form."""
     if data is None:
@@ -110,6 +129,10 @@ class Front:
         Finished trials in the study.
     results : tuple of RecipeResult
         The front, fidelity descending.
+    equivalents : dict
+        Notation of a front recipe -> the other recipes found with every one of
+        its figures (shortest, then alphabetical, first); recipes without are left
+        out. In ``front.json``, each front entry's ``equivalents`` list.
     baselines : tuple of BaselineResult
     target : TargetAnswer or None
     stillroom_version, created, updated : str or None
@@ -123,6 +146,7 @@ class Front:
     complete: bool = False
     n_trials: int | None = None
     results: tuple = ()
+    equivalents: dict = field(default_factory=dict)
     baselines: tuple = ()
     target: TargetAnswer | None = None
     stillroom_version: str | None = None
@@ -143,6 +167,14 @@ class Front:
     def seed(self):
         return self.settings.get("seed")
 
+    def equivalents_of(self, result) -> tuple[str, ...]:
+        """The other recipes with every figure of the front recipe ``result``."""
+        return tuple(self.equivalents.get(result.notation, ()))
+
+    def entry(self, result) -> dict:
+        """A front recipe as ``front.json`` lists it: its figures and its equivalents."""
+        return {**result.to_dict(), "equivalents": list(self.equivalents_of(result))}
+
     def to_json(self) -> dict:
         return {
             "stillroom_version": self.stillroom_version,
@@ -154,7 +186,7 @@ class Front:
             "complete_depth": self.complete_depth,
             "complete": bool(self.complete),
             "n_trials": self.n_trials,
-            "front": [r.to_dict() for r in self.results],
+            "front": [self.entry(r) for r in self.results],
             "baselines": [b.to_dict() for b in self.baselines],
             "target": None if self.target is None else self.target.to_dict(),
         }
@@ -181,6 +213,7 @@ class Front:
             complete=bool(data.get("complete", False)),
             n_trials=data.get("n_trials"),
             results=tuple(result_from_dict(e) for e in data["front"]),
+            equivalents=equivalents_from(data["front"]),
             baselines=tuple(BaselineResult.from_dict(e) for e in data["baselines"]),
             target=target_from_dict(data.get("target")),
             stillroom_version=data.get("stillroom_version"),

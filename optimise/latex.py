@@ -98,7 +98,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
     the profile and says what each symbol means; the notes under the table
     carry the provenance and :data:`ASSUMPTIONS`. Needs ``\\usepackage{booktabs}``.
     """
-    from .rows import DEFAULT_TOP, canonical_notes
+    from .rows import DEFAULT_TOP, canonical_notes, note_mark
 
     top = DEFAULT_TOP if top is None else top
     rows, baselines, target_table = report_rows(front, top, targets)
@@ -110,7 +110,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
 
     def mark(text: str) -> str:
         notes.append(text)
-        return r"\textsuperscript{" + chr(ord("a") + len(notes) - 1) + "}"
+        return r"\textsuperscript{" + note_mark(len(notes) - 1) + "}"
 
     def row(first: str, r, recipe: str) -> str:
         return "  " + " & ".join([first, recipe] + _tex_cells(r, rate)) + r" \\"
@@ -196,7 +196,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
         r"  \begin{minipage}{\linewidth}\scriptsize",
     ]
     for k, note in enumerate(notes):
-        lines.append(r"  \textsuperscript{" + chr(ord("a") + k) + "}" + note + r".\\")
+        lines.append(r"  \textsuperscript{" + note_mark(k) + "}" + note + r".\\")
     reasons = canonical_notes(baselines, front.baselines)
     if reasons:
         lines.append(

@@ -6,7 +6,8 @@
     one row per recipe, front first, then baselines; columns :data:`CSV_COLUMNS`
     (``role`` is ``front`` or ``baseline``; ``success_probabilities`` is the
     per-step list joined by ``;``; ``bell_I`` ... ``bell_Z`` are the output
-    pair's weights in the Pauli-frame order).
+    pair's weights in the Pauli-frame order; ``equivalents``, joined by ``;``,
+    are the other recipes the search found with every figure of a front recipe).
 ``recipes.json``
     provenance (stillroom version, profile, settings, seed, dates, searched
     space, completeness) with the front and the baselines; its keys are
@@ -64,6 +65,8 @@ RECIPE_KEYS = (
     "rounds",
     "time_per_output_s",
 )
+# a front recipe also lists the recipes found with every one of its figures
+FRONT_RECIPE_KEYS = (*RECIPE_KEYS, "equivalents")
 CSV_COLUMNS = (
     "role",
     "baseline",
@@ -81,6 +84,7 @@ CSV_COLUMNS = (
     "bell_Y",
     "bell_Z",
     "success_probabilities",
+    "equivalents",
 )
 REPORT_FILES = ("front.csv", "recipes.json", "table.tex", "table.md", "front.png", "front.svg")
 
@@ -104,7 +108,7 @@ def _exact(x) -> str:
     return "" if x is None or x == float("inf") else repr(float(x))
 
 
-def _csv_row(role: str, r, name: str = "", depth="") -> dict:
+def _csv_row(role: str, r, name: str = "", depth="", equivalents=()) -> dict:
     bell = r.bell
     return {
         "role": role,
@@ -123,12 +127,13 @@ def _csv_row(role: str, r, name: str = "", depth="") -> dict:
         "bell_Y": _exact(bell[2]),
         "bell_Z": _exact(bell[3]),
         "success_probabilities": ";".join(_exact(p) for p in r.success_probabilities),
+        "equivalents": ";".join(equivalents),
     }
 
 
 def csv_rows(front) -> list[dict]:
     """Rows of ``front.csv``: front recipes, then baselines; keys :data:`CSV_COLUMNS`."""
-    rows = [_csv_row("front", r) for r in front.results]
+    rows = [_csv_row("front", r, equivalents=front.equivalents_of(r)) for r in front.results]
     rows += [_csv_row("baseline", b.result, b.name, b.depth) for b in front.baselines]
     return rows
 
@@ -160,7 +165,7 @@ def recipes_document(front) -> dict:
         "complete_depth": front.complete_depth,
         "complete": bool(front.complete),
         "n_trials": front.n_trials,
-        "front": [_recipe_only(r.to_dict()) for r in front.results],
+        "front": [_recipe_only(front.entry(r), FRONT_RECIPE_KEYS) for r in front.results],
         "baselines": [
             {**_recipe_only(b.result.to_dict()), "baseline": b.name, "depth": b.depth}
             for b in front.baselines
@@ -171,8 +176,8 @@ def recipes_document(front) -> dict:
     }
 
 
-def _recipe_only(entry: dict) -> dict:
-    return {key: entry[key] for key in RECIPE_KEYS}
+def _recipe_only(entry: dict, keys=RECIPE_KEYS) -> dict:
+    return {key: entry[key] for key in keys}
 
 
 def _now() -> str:
@@ -342,7 +347,7 @@ def _selection_sentence(shown: int, total: int, top: int) -> str:
 def report_rows(front, top: int, targets):
     from .rows import baseline_rows, front_rows, target_rows
 
-    chosen = front_rows(front.results, top)
+    chosen = front_rows(front.results, top, front.equivalents)
     baselines = baseline_rows(front.baselines, every=top <= 0)
     wanted = list(targets or ())
     if front.target is not None and front.target.target_fidelity not in wanted:
@@ -354,8 +359,6 @@ def _md_recipe(row) -> str:
     text = f"`{row.result.notation}`"
     if row.written:
         text += f" (built as `{row.written}`)"
-    if row.also:
-        text += " (also: " + ", ".join(a if row.label else f"`{a}`" for a in row.also) + ")"
     return text
 
 
@@ -371,12 +374,13 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
     targets : sequence of float
         Target fidelities, one row each (the run's own ``--target`` is added).
     """
-    from .rows import DEFAULT_TOP, canonical_notes
+    from .rows import DEFAULT_TOP, canonical_notes, note_mark
 
     top = DEFAULT_TOP if top is None else top
     rows, baselines, target_table = report_rows(front, top, targets)
     rate = has_pair_rate(front.profile)
     headers = [h for h, _ in HEADERS] + ([RATE_HEADER] if rate else [])
+    notes = []
     numbers = ["---:"] * (len(headers) - 2)
     lines = [
         f"# Pareto front: {front.profile_name}",
@@ -389,7 +393,14 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
     for i, row in enumerate(rows, 1):
         cells = recipe_cells(row.result) + ([rate_cell(row.result)] if rate else [])
         cells[0] = _md_recipe(row)
+        if row.also:  # a note under the table keeps the recipe column narrow
+            cells[0] += f"<sup>{note_mark(len(notes))}</sup>"
+            notes.append(
+                f"<sup>{note_mark(len(notes))}</sup> " + ", ".join(f"`{a}`" for a in row.also)
+            )
         lines.append("| " + " | ".join([str(i)] + cells) + " |")
+    if notes:
+        lines += ["", "Other recipes with the same figures: " + "; ".join(notes) + "."]
     if baselines:
         shown = "" if top <= 0 else ", those no other baseline beats in both fidelity and yield"
         lines += ["", f"Textbook baselines (reference{shown}):", ""]

@@ -16,7 +16,8 @@ Rules, stated once:
 - **Grouping** (:func:`group_identical`): recipes whose figures are identical
   as the table prints them (:func:`shown_figures`) share one row; the row shows
   the shortest canonical string (then the first in alphabetical order) and
-  names the others as "also: ...".
+  names the others, with the recipes the search found with exactly the same
+  figures (``Front.equivalents``), in a note under the table.
 - **Targets** (:func:`target_rows`): for each target fidelity, the cheapest
   front recipe reaching it within the run's limits, the cheapest textbook
   baseline reaching it, and the saving in raw pairs per output, in percent.
@@ -46,6 +47,22 @@ def shown_figures(r) -> tuple:
 def representative_order(text: str) -> tuple[int, str]:
     """Which of several equal recipes a row shows: the shortest string, then alphabetical."""
     return (len(text), text)
+
+
+def note_mark(k: int) -> str:
+    """The mark of a table's k-th note (from 0): a, b, ..., z, aa, ab, ...
+
+    Examples
+    --------
+    >>> [note_mark(k) for k in (0, 25, 26, 27, 701, 702)]
+    ['a', 'z', 'aa', 'ab', 'zz', 'aaa']
+    """
+    mark = ""
+    k += 1
+    while k:
+        k, digit = divmod(k - 1, 26)
+        mark = chr(ord("a") + digit) + mark
+    return mark
 
 
 @dataclass(frozen=True)
@@ -87,9 +104,9 @@ def group_identical(rows: list[Row], *, key_text=lambda row: row.result.notation
             members, key=lambda m: (representative_order(m.result.notation), key_text(m))
         )
         first = members[0]
-        others = [key_text(m) for m in members[1:]]
-        also = tuple(dict.fromkeys(o for o in others if o != key_text(first)))
-        merged.append(Row(first.result, first.also + also, first.label, first.written))
+        others = [text for m in members[1:] for text in (key_text(m), *m.also)]
+        also = tuple(dict.fromkeys(o for o in first.also + tuple(others) if o != key_text(first)))
+        merged.append(Row(first.result, also, first.label, first.written))
     return merged
 
 
@@ -150,9 +167,14 @@ def cover(results, n: int) -> list[int]:
     return sorted(chosen)
 
 
-def front_rows(results, top: int) -> list[Row]:
-    """The front rows of a table: grouped first, then :func:`cover` of the groups."""
-    grouped = group_identical([Row(r) for r in results])
+def front_rows(results, top: int, equivalents=None) -> list[Row]:
+    """The front rows of a table: grouped first, then :func:`cover` of the groups.
+
+    ``equivalents`` (notation -> other notations, as ``Front.equivalents``) start
+    each recipe's ``also``.
+    """
+    equivalents = equivalents or {}
+    grouped = group_identical([Row(r, tuple(equivalents.get(r.notation, ()))) for r in results])
     return [grouped[i] for i in cover([row.result for row in grouped], top)]
 
 

@@ -385,8 +385,10 @@ class Run:
             return None
         recorded = self.read_json(SETTINGS_FILE)
         fixed = settings.fixed_json()
-        # the recorded values themselves (a sampler's settings as they were then)
-        found = first_difference({k: recorded.get(k, "<unset>") for k in fixed}, fixed)
+        # the recorded values themselves (a sampler's settings as they were then);
+        # a setting added since the folder was written counts at its default
+        old = type(settings).with_added_defaults(recorded)
+        found = first_difference({k: old.get(k, "<unset>") for k in fixed}, fixed)
         if found:
             name, a, b = found
             raise RunError(

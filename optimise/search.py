@@ -259,7 +259,7 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
         exhaustive=exhaustive,
         complete=complete,
     )
-    tracker.add_layer(deep.space, deep.results)
+    tracker.add_layer(deep.space, deep.results, deep.equivalents)
     done_now = finished_count(study)
     tracker.add_trials(study.get_trials(deepcopy=False))
     tracker.write(done_now)

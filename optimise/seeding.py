@@ -4,17 +4,14 @@ from __future__ import annotations
 
 from models.notation import parse_recipe
 
-from .deep import DEFAULT_WIDTH, DeepFront, deep_front
+from .deep import DeepFront, deep_front
 from .exhaustive import ExhaustiveFront, exhaustive_front
+from .settings import DEEP_LEVELS_LIMIT
 from .space import recipe_params
 
 # automatic depth: expand a depth only while it needs at most this many rounds
 # evaluated, which keeps the exhaustive layer to seconds (see tests/benchmarks)
 AUTO_MAX_EVALUATIONS = 3_000_000
-# most levels of the deep layer in a search (its time grows about linearly with them)
-DEEP_LEVELS_LIMIT = 12
-# pairs kept per level of the deep layer in a search (read at each call)
-DEEP_WIDTH = DEFAULT_WIDTH
 
 NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     results=[],
@@ -24,6 +21,17 @@ NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     complete_depth=0,
     space="no exhaustive layer",
     symmetry="none",
+    seconds=0.0,
+)
+NO_DEEP_LAYER = DeepFront(
+    results=[],
+    equivalents={},
+    pairs_per_level=(),
+    evaluations_per_level=(),
+    depth=0,
+    layers=0,
+    width=0,
+    space="no deep layer",
     seconds=0.0,
 )
 
@@ -82,23 +90,30 @@ def enqueue_known(study, notations, max_depth: int, between=None) -> int:
 
 
 def deep_levels(settings) -> int:
-    """Levels of a search's deep layer: twice the depth cap, at most DEEP_LEVELS_LIMIT."""
+    """Levels of a search's deep layer: ``settings.deep_levels``, or (None) twice the
+    depth cap, at most :data:`optimise.settings.DEEP_LEVELS_LIMIT`."""
+    if settings.deep_levels is not None:
+        return settings.deep_levels
     return min(2 * settings.depth_cap, DEEP_LEVELS_LIMIT)
 
 
 def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
     """The deep layer of a search (:mod:`optimise.deep`), seeded with known recipes.
 
-    Levels: twice the depth cap (the default ``--depth 5`` gives 10), at most
-    :data:`DEEP_LEVELS_LIMIT`; front recipes keep to the depth cap in their main
-    chain, deeper pairs serve as sacrificed pairs. Deterministic, so a resumed run
-    computes the same front again.
+    Levels: :func:`deep_levels` (the default ``--depth 5`` gives 10; 0: no deep
+    layer); width and Pareto layers: ``settings.deep_width``, ``deep_layers``.
+    Front recipes keep to the depth cap in their main chain, deeper pairs serve as
+    sacrificed pairs. Deterministic, so a resumed run computes the same front again.
     """
+    levels = deep_levels(settings)
+    if levels == 0:
+        return NO_DEEP_LAYER
     return deep_front(
         profile,
-        max_depth=deep_levels(settings),
+        max_depth=levels,
         max_chain=settings.depth_cap,
-        width=DEEP_WIDTH,
+        width=settings.deep_width,
+        layers=settings.deep_layers,
         objectives=settings.objectives,
         limits=settings.limits,
         seeds=seeds,

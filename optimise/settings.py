@@ -11,6 +11,13 @@ Each field says in its metadata what it is for (``role``):
     may change when a run is resumed (more trials, another wall time, more
     workers, another target asked of the front).
 
+A field may also name the command-line option that sets it (``option``), so that
+an error names what the user typed, and whether a ``settings.json`` written
+before the field existed may lack it (``added``: the default is then read).
+The deep layer's settings are ``run`` fields: they change the front, and a
+resumed run computes the deep layer again, so a resume with other values is
+refused (a new run name keeps both fronts reproducible).
+
 ``settings.json`` is :meth:`SearchSettings.to_json` (plus the dates and version
 the run folder adds); :meth:`SearchSettings.from_json` reads it back. The samplers
 a search may use, and every setting each records, are listed here too
@@ -36,6 +43,15 @@ NSGA2_POPULATION = 40
 TPE_STARTUP_TRIALS = 20
 MAX_DEPTH_LIMIT = 12
 ROLES = ("study", "run", "budget")
+# the deep layer of a search (optimise.deep): its defaults keep it to about 15 s of
+# the demo's minute (tests/benchmarks/bench_search.py); its time grows roughly as
+# the width squared times the levels
+DEEP_WIDTH = 8
+DEEP_LAYERS = 2
+DEEP_LEVELS_LIMIT = 12
+# a width of 256 would take some hours on the demo and a few GB of memory (width 64
+# took 17 min and 0.4 GB on a shared 2-core machine; both grow about as the width squared)
+DEEP_WIDTH_LIMIT = 256
 
 
 def sampler_settings(name: str, seed: int) -> dict:
@@ -74,8 +90,8 @@ def sampler_settings(name: str, seed: int) -> dict:
     }
 
 
-def _role(role: str, **kwargs):
-    return field(metadata={"role": role}, **kwargs)
+def _role(role: str, option: str | None = None, *, added: bool = False, **kwargs):
+    return field(metadata={"role": role, "option": option, "added": added}, **kwargs)
 
 
 def _check_int(name, value, low, high, meaning):
@@ -103,6 +119,14 @@ class SearchSettings:
         Hardware limits (a dict of its fields or None is accepted).
     exhaustive_depth : int in [0, max_depth] or None
         Depth up to which every linear recipe is evaluated first (None: automatic).
+    deep_width : int in [0, 256]
+        Pairs the deep layer keeps per level (0: no cap).
+    deep_layers : int in [0, 256]
+        Pareto layers the deep layer keeps per level (0: all); not 0 with a
+        width of 0, which would keep every pair.
+    deep_levels : int in [0, 12] or None
+        Levels of the deep layer (None: twice the depth cap, at most 12; 0: no
+        deep layer).
     seed : int in [0, 2**32 - 1]
     sampler : one of :data:`SAMPLERS`
     storage : str or None
@@ -123,17 +147,20 @@ class SearchSettings:
         (a ValueError) naming the field, its value and the allowed range.
     """
 
-    max_depth: int = _role("study", default=6)
-    objectives: tuple = _role("study", default=DEFAULT_OBJECTIVES)
+    max_depth: int = _role("study", "--depth", default=6)
+    objectives: tuple = _role("study", "--objectives", default=DEFAULT_OBJECTIVES)
     limits: Limits = _role("study", default_factory=Limits)
-    exhaustive_depth: int | None = _role("run", default=None)
-    seed: int = _role("study", default=0)
-    sampler: str = _role("study", default="nsga2")
-    storage: str | None = _role("run", default=None)
-    n_trials: int = _role("budget", default=200)
-    timeout_s: float | None = _role("budget", default=None)
-    workers: int = _role("budget", default=1)
-    target_fidelity: float | None = _role("budget", default=None)
+    exhaustive_depth: int | None = _role("run", "--exhaustive-depth", default=None)
+    deep_width: int = _role("run", "--deep-width", added=True, default=DEEP_WIDTH)
+    deep_layers: int = _role("run", "--deep-layers", added=True, default=DEEP_LAYERS)
+    deep_levels: int | None = _role("run", "--deep-levels", added=True, default=None)
+    seed: int = _role("study", "--seed", default=0)
+    sampler: str = _role("study", "--sampler", default="nsga2")
+    storage: str | None = _role("run", "--storage", default=None)
+    n_trials: int = _role("budget", "--trials", default=200)
+    timeout_s: float | None = _role("budget", "--time", default=None)
+    workers: int = _role("budget", "--workers", default=1)
+    target_fidelity: float | None = _role("budget", "--target", default=None)
 
     def __post_init__(self):
         _check_int(
@@ -149,6 +176,33 @@ class SearchSettings:
                 0,
                 self.max_depth,
                 "the depth up to which every linear recipe is evaluated (None: automatic)",
+            )
+        _check_int(
+            "deep_width",
+            self.deep_width,
+            0,
+            DEEP_WIDTH_LIMIT,
+            "the most pairs the deep layer keeps per level (0: no cap)",
+        )
+        _check_int(
+            "deep_layers",
+            self.deep_layers,
+            0,
+            DEEP_WIDTH_LIMIT,
+            "the Pareto layers the deep layer keeps per level (0: all)",
+        )
+        if self.deep_width == 0 and self.deep_layers == 0:
+            raise InputError(
+                "deep_width = 0 and deep_layers = 0 together keep every pair the deep layer "
+                "makes, a hundredfold more or so each level; cap one of them"
+            )
+        if self.deep_levels is not None:
+            _check_int(
+                "deep_levels",
+                self.deep_levels,
+                0,
+                DEEP_LEVELS_LIMIT,
+                "the levels of the deep layer (None: automatic; 0: no deep layer)",
             )
         t = self.timeout_s
         if t is not None and (
@@ -175,6 +229,23 @@ class SearchSettings:
         if unknown:
             raise ValueError(f"unknown role {sorted(unknown)[0]!r}; one of {', '.join(ROLES)}")
         return tuple(f.name for f in dataclasses.fields(cls) if f.metadata["role"] in roles)
+
+    @classmethod
+    def options(cls) -> dict[str, str]:
+        """The command-line option of each field that has one (field name -> option)."""
+        return {
+            f.name: f.metadata["option"] for f in dataclasses.fields(cls) if f.metadata["option"]
+        }
+
+    @classmethod
+    def with_added_defaults(cls, data: dict) -> dict:
+        """``settings.json`` data with the fields it predates (``added``) at their defaults."""
+        later = {
+            f.name: f.default
+            for f in dataclasses.fields(cls)
+            if f.metadata["added"] and f.name not in data
+        }
+        return {**data, **later}
 
     @property
     def depth_cap(self) -> int:
@@ -234,10 +305,13 @@ class SearchSettings:
         Raises
         ------
         ValueError
-            When a field is missing or invalid (the caller names the file).
+            When a field is missing or invalid (the caller names the file). A field
+            added since run folders were first written (``added``) may be missing:
+            it then takes its default.
         """
         if not isinstance(data, dict):
             raise ValueError(f"settings must be a JSON object, not {type(data).__name__}")
+        data = cls.with_added_defaults(data)
         missing = [f.name for f in dataclasses.fields(cls) if f.name not in data]
         if missing:
             raise ValueError(f"settings have no {missing[0]!r}")

@@ -7,7 +7,15 @@ from pathlib import Path
 
 from ..objectives import DEFAULT as DEFAULT_OBJECTIVES
 from ..objectives import OBJECTIVES
-from ..settings import MAX_DEPTH_LIMIT, SAMPLERS
+from ..settings import (
+    DEEP_LAYERS,
+    DEEP_LEVELS_LIMIT,
+    DEEP_WIDTH,
+    DEEP_WIDTH_LIMIT,
+    MAX_DEPTH_LIMIT,
+    SAMPLERS,
+    SearchSettings,
+)
 from . import common
 
 NAME = "search"
@@ -78,8 +86,7 @@ def add_parser(sub, parents) -> None:
         type=common.objectives,
         default=DEFAULT_OBJECTIVES,
         metavar="LIST",
-        help=f"{','.join(DEFAULT_OBJECTIVES)}{optional} "
-        f"(default: {','.join(DEFAULT_OBJECTIVES)})",
+        help=f"{','.join(DEFAULT_OBJECTIVES)}{optional} (default: {','.join(DEFAULT_OBJECTIVES)})",
     )
     common.add_limit_options(p)
     p.add_argument(
@@ -89,6 +96,48 @@ def add_parser(sub, parents) -> None:
         help="first evaluate every linear recipe to depth D exactly "
         "(default: the search layer's choice)",
     )
+    deep = p.add_argument_group(
+        "deep layer",
+        common.wrap(
+            "After the exhaustive layer, trees of made pairs are grown level by level, keeping at "
+            "each level only the pairs on the first Pareto layers, at most a width of them. Its "
+            "time grows roughly as the width squared times the levels: the defaults take about "
+            "15 s of the demo's minute, --deep-width 64 takes a quarter of an hour there and 128 "
+            "about an hour (an overnight run). "
+            "A resumed run must repeat these values."
+        ),
+    )
+    for option, high, default, metavar, text in (
+        (
+            "--deep-width",
+            DEEP_WIDTH_LIMIT,
+            DEEP_WIDTH,
+            "W",
+            "pairs kept per level; 0 for no cap, slow",
+        ),
+        (
+            "--deep-layers",
+            DEEP_WIDTH_LIMIT,
+            DEEP_LAYERS,
+            "K",
+            "Pareto layers kept per level; 0 for all, within the width",
+        ),
+        (
+            "--deep-levels",
+            DEEP_LEVELS_LIMIT,
+            None,
+            "L",
+            f"levels of made pairs; 0 for no deep layer (default: twice --depth, at most "
+            f"{DEEP_LEVELS_LIMIT})",
+        ),
+    ):
+        deep.add_argument(
+            option,
+            type=common.whole_number_at_least(0, high),
+            default=default,
+            metavar=metavar,
+            help=text + (" (default: %(default)s)" if default is not None else ""),
+        )
     p.add_argument(
         "--storage",
         metavar="URL",
@@ -117,18 +166,10 @@ def add_parser(sub, parents) -> None:
     p.set_defaults(handler=run)
 
 
-# the option that sets each SearchSettings field, so that an error names what the user typed
+# the option that sets each SearchSettings field (and each limit), so that an error
+# names what the user typed
 OPTION_OF_FIELD = {
-    "max_depth": "--depth",
-    "objectives": "--objectives",
-    "exhaustive_depth": "--exhaustive-depth",
-    "seed": "--seed",
-    "sampler": "--sampler",
-    "storage": "--storage",
-    "n_trials": "--trials",
-    "timeout_s": "--time",
-    "workers": "--workers",
-    "target_fidelity": "--target",
+    **SearchSettings.options(),
     "max_memory_per_node": "--max-memory",
     "max_time_per_output_s": "--max-time-per-output",
 }
@@ -142,7 +183,6 @@ def settings_from(args):
     import re
 
     from ..errors import InputError
-    from ..settings import SearchSettings
 
     try:
         return SearchSettings(
@@ -150,6 +190,9 @@ def settings_from(args):
             objectives=args.objectives,
             limits=common.limits(args),
             exhaustive_depth=args.exhaustive_depth,
+            deep_width=args.deep_width,
+            deep_layers=args.deep_layers,
+            deep_levels=args.deep_levels,
             seed=args.seed,
             sampler=args.sampler,
             storage=args.storage,
@@ -192,6 +235,9 @@ def run(args) -> int:
         print(INTERRUPTED, file=sys.stderr)
         return 130
     written = write_reports(run_dir, top=args.top, targets=args.targets)
+    from ..run import Run
+
+    front = Run(run_dir).read_front()
     if args.json:
         common.print_json(
             {
@@ -202,7 +248,7 @@ def run(args) -> int:
                 "n_trials_total": outcome.n_trials_total,
                 "n_trials_this_run": outcome.n_trials_this_run,
                 "complete_depth": outcome.complete_depth,
-                "front": [r.to_dict() for r in outcome.front],
+                "front": [front.entry(r) for r in front.results],
                 "baselines": [b.to_dict() for b in outcome.baselines],
                 "target": None if outcome.target is None else outcome.target.to_dict(),
                 "files": [str(p) for p in written],
@@ -218,10 +264,9 @@ def run(args) -> int:
             else ""
         )
     )
-    from ..run import Run
     from .table import print_tables
 
-    print_tables(out, Run(run_dir).read_front(), top=args.top, targets=args.targets)
+    print_tables(out, front, top=args.top, targets=args.targets)
     if outcome.target is not None:
         out.print()
         out.print(
@@ -267,10 +312,17 @@ def start_message(run_dir, settings) -> str:
     from ..seeding import deep_levels
 
     limits = settings.limits.describe()
-    deep = f"a deep layer of made pairs over {deep_levels(settings)} levels"
+    levels = deep_levels(settings)
+    width = f"width {settings.deep_width}" if settings.deep_width else "no width cap"
+    layers = settings.deep_layers
+    kept = f"{common.count(layers, 'Pareto layer')}" if layers else "every Pareto layer"
+    deep = (
+        f"a deep layer of made pairs over {levels} levels ({width}, {kept})"
+        if levels
+        else "no deep layer"
+    )
     return (
         f"new search: recipes of 1 to {settings.max_depth} rounds ({layer}, {deep}, then "
         f"sampled by {settings.sampler}); objectives {', '.join(settings.objectives)}; {limits}; "
         f"budget {budget}; writes {run_dir}"
     )
-

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import sys
+import textwrap
 from pathlib import Path
 
-from ..reports import TABLE_FORMATS
+from ..reports import CSV_COLUMNS, TABLE_FORMATS
 from . import common
 
 NAME = "table"
@@ -23,10 +24,13 @@ def add_parser(sub, parents) -> None:
             "The tables show --top recipes that cover the front (its two ends always); "
             "front.csv and recipes.json keep every recipe."
         ),
-        epilog="front.csv columns: role, baseline, depth, recipe, id, fidelity, yield,\n"
-        "  raw_pairs_per_output, memory_per_node, rounds, time_per_output_s,\n"
-        "  bell_I, bell_X, bell_Y, bell_Z, success_probabilities (';'-separated)\n\n"
-        "examples:\n  stillroom table runs/demo-metro\n"
+        epilog=textwrap.fill(
+            "front.csv columns: " + ", ".join(CSV_COLUMNS) + " (the last two ';'-separated; "
+            "equivalents: other recipes found with every figure of a front recipe)",
+            78,
+            subsequent_indent="  ",
+        )
+        + "\n\nexamples:\n  stillroom table runs/demo-metro\n"
         "  stillroom table demo-metro --top 6 --targets 0.95,0.98,0.99\n"
         "  stillroom table demo-metro --format tex > front-table.tex",
     )

@@ -260,21 +260,20 @@ def best_baselines(profile, max_depth=12):
 
 def layered_search(profile, factor: float, layers_only: bool, folder):
     """The default search (factor 1) or a longer one; returns (results, seconds)."""
-    import optimise.seeding as seeding
     from optimise.search import run_search
     from optimise.settings import SearchSettings
 
     started = time.monotonic()
-    width = seeding.DEEP_WIDTH
-    seeding.DEEP_WIDTH = int(round(width * factor**0.5))
-    try:
-        defaults = SearchSettings(max_depth=5, n_trials=1000)
-        trials = 0 if layers_only else int(defaults.n_trials * factor)
-        outcome = run_search(
-            profile, run_dir=folder, settings=defaults.replace(n_trials=trials), progress=False
-        )
-    finally:
-        seeding.DEEP_WIDTH = width
+    defaults = SearchSettings(max_depth=5, n_trials=1000)
+    # the deep layer's time grows about as its width squared: factor times longer
+    width = int(round(defaults.deep_width * factor**0.5))
+    trials = 0 if layers_only else int(defaults.n_trials * factor)
+    outcome = run_search(
+        profile,
+        run_dir=folder,
+        settings=defaults.replace(n_trials=trials, deep_width=width),
+        progress=False,
+    )
     results = list(outcome.front) + [evaluate("raw", profile)]
     return results, time.monotonic() - started
 

@@ -35,6 +35,9 @@ OPTION_VALUES = {
     "--max-memory": ["0", "-2", "two"],
     "--max-time-per-output": ["-1", "0", "soon"],
     "--exhaustive-depth": ["-1", "x"],
+    "--deep-width": ["-1", "257", "x", "1.5", "", "9" * 400],
+    "--deep-layers": ["-1", "257", "two", ""],
+    "--deep-levels": ["-1", "13", "auto", "0.5"],
     "--workers": ["0", "-3", "many", "257"],
     "--seed": ["x", "1.5", "-1", str(2**40)],
     "--sampler": ["cmaes", "", "NSGA2"],
@@ -47,6 +50,7 @@ SEARCH_CASES = [
 ]
 SEARCH_CASES += [["search", option] for option in OPTION_VALUES]  # a value missing
 SEARCH_CASES += [
+    ["search", "--deep-width", "0", "--deep-layers", "0"],  # every pair kept: refused
     ["search", "--bogus"],
     ["search", "a.toml", "b.toml"],
     ["search", "missing.toml"],

@@ -93,8 +93,9 @@ def test_run_folder_front_and_trials(tmp_path):
     assert data["settings"]["seed"] == 0 and data["settings"]["sampler"]["name"] == "nsga2"
     assert data["complete_depth"] == out.complete_depth == 2 and data["complete"] is False
     assert data["target"] is None and out.target is None
-    # the front: RecipeResult.to_dict() entries, fidelity descending, one per recipe
-    assert all(set(e) == RESULT_KEYS for e in data["front"])
+    # the front: RecipeResult.to_dict() entries and their equivalents, fidelity descending,
+    # one per recipe
+    assert all(set(e) == RESULT_KEYS | {"equivalents"} for e in data["front"])
     fids = [e["fidelity"] for e in data["front"]]
     assert fids == sorted(fids, reverse=True)
     assert [e["id"] for e in data["front"]] == [r.recipe_id for r in out.front]

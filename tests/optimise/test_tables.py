@@ -123,7 +123,8 @@ def test_identical_figures_share_a_row_shown_by_the_shortest_string(wide_front):
     assert rows[0].result.notation == "sX.sY"  # shortest, then alphabetical
     assert rows[0].also == ("sY.sX", "pZ.pX.pZ")
     md = table_md(dataclasses.replace(front, results=tuple(twins)), top=0)
-    assert "`sX.sY` (also: `sY.sX`, `pZ.pX.pZ`)" in md
+    assert "| `sX.sY`<sup>a</sup> |" in md
+    assert "Other recipes with the same figures: <sup>a</sup> `sY.sX`, `pZ.pX.pZ`." in md
 
 
 def test_target_rows_name_the_cheapest_recipe_and_baseline(wide_front):
