@@ -2,6 +2,14 @@
 
 from __future__ import annotations
 
+from joblib.parallel import (
+    LokyBackend,
+    MultiprocessingBackend,
+    SequentialBackend,
+    ThreadingBackend,
+    get_active_backend,
+)
+
 from models.notation import parse_recipe
 
 from .deep import DEFAULT_WIDTH, DeepFront, deep_front
@@ -16,6 +24,9 @@ DEEP_LEVELS_LIMIT = 12
 # pairs kept per level of the deep layer in a search (read at each call)
 DEEP_WIDTH = DEFAULT_WIDTH
 
+# joblib backends on this machine: the search's --workers says how many to use
+LOCAL_BACKENDS = (LokyBackend, MultiprocessingBackend, SequentialBackend, ThreadingBackend)
+
 NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     results=[],
     states_per_depth=(),
@@ -26,6 +37,20 @@ NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     symmetry="none",
     seconds=0.0,
 )
+
+
+def layer_jobs(settings) -> int | None:
+    """Workers of the exhaustive and deep layers of a search.
+
+    On this machine (joblib's local backends, local processes by default) the
+    search's ``workers``, so one worker runs the layers in its own process; on a
+    cluster backend the caller chose with :func:`joblib.parallel_config` (Dask),
+    the number configured there, or all of the cluster's workers.
+    """
+    backend, configured = get_active_backend()
+    if isinstance(backend, LOCAL_BACKENDS):
+        return settings.workers
+    return -1 if configured is None else configured
 
 
 def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
@@ -51,7 +76,7 @@ def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
         max_depth=depth if requested is None else min(requested, depth),
         objectives=settings.objectives,
         limits=settings.limits,
-        n_jobs=-1,
+        n_jobs=layer_jobs(settings),
         max_evaluations=AUTO_MAX_EVALUATIONS if requested is None else None,
         on_depth=on_depth,
     )
@@ -103,4 +128,5 @@ def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
         limits=settings.limits,
         seeds=seeds,
         on_level=on_level,
+        n_jobs=layer_jobs(settings),
     )
