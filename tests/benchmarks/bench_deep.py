@@ -57,7 +57,8 @@ from optimise.settings import SearchSettings
 s, p = SearchSettings(), demo_profile()
 ex = exhaustive_front(p, max_depth=s.depth_cap, objectives=s.objectives, limits=s.limits,
                       max_evaluations=AUTO_MAX_EVALUATIONS)
-known = [r.notation for r in ex.results] + [b.result.notation for b in baseline_results(p, s.max_depth)]
+known = [r.notation for r in ex.results]
+known += [b.result.notation for b in baseline_results(p, s.max_depth)]
 print(json.dumps(known))
 """
     return json.loads(_python(ROOT, code))
