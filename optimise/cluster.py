@@ -46,14 +46,28 @@ def check_address(text: str) -> str:
     """
     match = _ADDRESS.fullmatch(text)
     if match is None or match["scheme"] not in SCHEMES:
-        shown = text if len(text) <= 60 else text[:57] + "..."
         raise ValueError(
-            f"{shown!r} is not a scheduler address; write {ADDRESS_FORM} (e.g. tcp://127.0.0.1:8786)"
+            f"{shown_address(text)!r} is not a scheduler address; write {ADDRESS_FORM} "
+            "(e.g. tcp://127.0.0.1:8786)"
+        )
+    host = match["host"]
+    # a host name has labels of 1 to 63 characters, 253 in all (RFC 1035, section 2.3.4)
+    if not host.startswith("[") and (
+        len(host) > 253 or any(not 1 <= len(label) <= 63 for label in host.split("."))
+    ):
+        raise ValueError(
+            f"host of {shown_address(text)!r} is not a host name (labels of 1 to 63 "
+            "characters, at most 253 in all)"
         )
     port = int(match["port"])
     if not 1 <= port <= 65535:
-        raise ValueError(f"port {port} of {text!r} must be in [1, 65535]")
+        raise ValueError(f"port {port} of {shown_address(text)!r} must be in [1, 65535]")
     return text
+
+
+def shown_address(text: str) -> str:
+    """An address as an error message shows it: at most 60 characters."""
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 @contextlib.contextmanager
@@ -77,7 +91,7 @@ def dask_layers(address: str, timeout_s: float | None = None):
     timeout_s = CONNECT_TIMEOUT_S if timeout_s is None else timeout_s
     try:
         client = Client(address, timeout=timeout_s)
-    except (OSError, TimeoutError) as error:
+    except (OSError, TimeoutError, ValueError) as error:  # ValueError: a name DNS refuses
         reason = str(error).splitlines()[0] if str(error) else type(error).__name__
         raise InputError(
             f"{OPTION} = {address}: no Dask scheduler answered within {timeout_s:g} s ({reason})"
