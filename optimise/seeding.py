@@ -53,6 +53,20 @@ def layer_jobs(settings) -> int | None:
     return -1 if configured is None else configured
 
 
+def release_layer_workers() -> None:
+    """End the local processes the layers ran on, once they are done.
+
+    joblib keeps its local worker processes idle for minutes after the work, to
+    be used again; a search has no more use for them, and they would outlive a
+    killed search (holding its output streams open).
+    """
+    backend, _ = get_active_backend()
+    if isinstance(backend, LokyBackend):
+        from joblib.externals.loky import get_reusable_executor
+
+        get_reusable_executor().shutdown(wait=True)
+
+
 def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
     """The exhaustive front of the run, computed once and kept by the :class:`Run`.
 
