@@ -29,7 +29,7 @@ import numpy as np
 
 from .kinds import STEP_KINDS
 from .recipes import Recipe, Round
-from .waiting import Weighted, joint_deficit, joint_waits, retry, run_attempt
+from .waiting import Weighted, joint_deficit, joint_waits, prepare, retry, run_attempt
 
 
 def _linear_rounds() -> tuple[Round, ...]:
@@ -352,9 +352,10 @@ def _attempts(kind, joint, group, group_codes, bound, branch, order=None):
         rotations = tuple(rot[:, j] for j in range(kind.n_inputs))
         branch[group] = run_attempt(kind.circuit, joint, order, rotations, bound)
         return
+    prepared = prepare(joint, order)
     bounds = np.append(starts, group.size)
     for code, lo, hi in zip(distinct, bounds[:-1], bounds[1:], strict=True):
-        part = joint.take(slice(lo, hi))
+        part = prepared.take(slice(lo, hi))
         rotations = LINEAR_ROUNDS[code].rotations
         branch[group[lo:hi]] = run_attempt(kind.circuit, part, order, rotations, bound)
 
@@ -498,8 +499,8 @@ def advance_every(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.nd
                 if columns.size == 0:
                     continue
                 made = _made(part, same, kind.n_inputs, bound, lattice)
-                joint = joint_waits(made, lattice, k)
                 order = tuple(range(kind.n_inputs))
+                joint = prepare(joint_waits(made, lattice, k), order)
                 for c in columns:
                     rotations = LINEAR_ROUNDS[codes[c]].rotations
                     branch[lo : lo + len(part), c] = run_attempt(

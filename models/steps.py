@@ -440,36 +440,63 @@ def run_joint(circuit: StepCircuit, joint, rotations, *, two_qubit, single_qubit
     j = np.asarray(joint, dtype=float)
     n = j.shape[0]
     survival = single_qubit**2
+    rotations = [np.asarray(r, dtype=np.intp) for r in rotations]
+    per_row = any(r.ndim for r in rotations)
+    if per_row:
+        # every pair's rotation in one gather over a row's joint labels (a rotation
+        # of one pair commutes with the noise on another, so all can come first)
+        j = _rotated_rows(j, rotations)
     for axis, r in enumerate(rotations, start=1):
-        r = np.asarray(r, dtype=np.intp)
         if r.ndim == 0:
             if r == IDENTITY:
                 continue
-            j = np.take(j, SOURCES[r], axis=axis)
+            if not per_row:
+                j = np.take(j, SOURCES[r], axis=axis)
             s2 = survival
         else:
-            # per-row rotations: gather along this pair's axis row by row
-            shape = [n] + [1] * n_pairs
-            shape[axis] = 4
-            j = np.take_along_axis(j, SOURCES[r].reshape(shape), axis=axis)
             s2 = np.where(r == IDENTITY, 1.0, survival).reshape([n] + [1] * n_pairs)
         # depolarising one pair of a joint distribution: its label becomes uniform
         marginal = j.sum(axis=axis, keepdims=True)
         j = s2 * j + (1.0 - s2) * 0.25 * marginal
     flat = j.reshape(n, 4**n_pairs)
-    term_weights = _term_weights(
-        circuit, two_qubit**2, float(check_error(measurement)), single_qubit**2
-    )
-    unnormalised = [0.0] * 4
-    for term, weights in zip(circuit.terms, term_weights, strict=True):
+    # the four kept labels at once: each is the same sum, term by term, as one at a time
+    unnormalised = 0.0
+    for term, weights in zip(
+        circuit.terms,
+        _scalar_term_weights(circuit, two_qubit, single_qubit, measurement),
+        strict=True,
+    ):
         grouped = (flat @ term).reshape(n, 4, -1)
-        for o in range(4):
-            for m, w in enumerate(weights):
-                unnormalised[o] = unnormalised[o] + w * grouped[:, o, m]
+        for m, w in enumerate(weights):
+            unnormalised = unnormalised + w * grouped[:, :, m]
     success = np.empty(n)
     kept = np.empty((4, n))
-    _normalise(unnormalised, success, kept)
+    _normalise(np.transpose(unnormalised), success, kept)
     return success, kept.T
+
+
+def _rotated_rows(joint, rotations) -> np.ndarray:
+    """Joint weights (N, 4, ..., 4) with pair a rotated by ``rotations[a]`` (an int or (N,))."""
+    n, n_pairs = joint.shape[0], joint.ndim - 1
+    index = np.zeros((n,) + (1,) * n_pairs, dtype=np.intp)
+    for a, r in enumerate(rotations):
+        shape = [n] + [1] * n_pairs
+        shape[a + 1] = 4
+        sources = SOURCES[np.broadcast_to(r, (n,))].reshape(shape)
+        index = index + sources * 4 ** (n_pairs - 1 - a)
+    index = np.broadcast_to(index, joint.shape).reshape(n, -1)
+    return np.take_along_axis(joint.reshape(n, -1), index, axis=1).reshape(joint.shape)
+
+
+@lru_cache(maxsize=256)
+def _scalar_term_weights(
+    circuit: StepCircuit, two_qubit: float, single_qubit: float, measurement: float
+):
+    """:func:`_term_weights` for scalar noise, worked out once per circuit and noise.
+
+    A search runs the same circuits under the same noise tens of thousands of times.
+    """
+    return _term_weights(circuit, two_qubit**2, float(check_error(measurement)), single_qubit**2)
 
 
 def _evaluate_chunk(circuit, inputs, rotations, *, s, q, p1, success, kept):

@@ -386,12 +386,35 @@ def joint_waits(made, lattice: RateLattice, k: int) -> Joint:
     return Joint(None, tail)
 
 
-def run_attempt(circuit, joint: Joint, order, rotations, bound: BoundNoise) -> np.ndarray:
-    """Unnormalised success branch S of a step on joint weights, shape (N, K, 4).
+@dataclass(frozen=True, eq=False)
+class Prepared:
+    """A step's joint input weights made ready for its attempts (:func:`prepare`).
 
-    ``order`` gives the role (0 kept, then sacrificed) of each input in making
-    order; ``rotations`` are in role order, ints or (N,) arrays.
+    Either ``joint`` (a product of one or two factors, used as it is) or
+    ``normalised``, shape (N, K, 4**n): the dense joint weights of each row and
+    rate divided by their ``total`` (N, K), in making order; ``order`` is the role
+    of each input in making order.
     """
+
+    joint: Joint | None
+    normalised: np.ndarray | None
+    total: np.ndarray | None
+    order: tuple
+
+    def take(self, index) -> Prepared:
+        """The prepared weights of rows ``index``."""
+        if self.joint is not None:
+            return Prepared(self.joint.take(index), None, None, self.order)
+        return Prepared(None, self.normalised[index], self.total[index], self.order)
+
+
+def prepare(joint: Joint, order) -> Prepared:
+    """Joint weights ready for any number of attempts with other rotations.
+
+    The normalisation of dense weights depends on the rows only, so a group of
+    rows tried with many rotations (every code of a round kind) does it once.
+    """
+    order = tuple(order)
     if joint.dense is None and len(joint.factors) > 2:
         # three or more factors: one matrix product on the joint weights beats
         # the label-by-label sums of a product
@@ -399,24 +422,41 @@ def run_attempt(circuit, joint: Joint, order, rotations, bound: BoundNoise) -> n
         k = max(f.shape[1] for f in joint.factors)
         factors = [np.broadcast_to(f, (f.shape[0], k, 4)) for f in joint.factors]
         joint = Joint(None, np.broadcast_to(_outer(factors), (n, k, 4 ** len(factors))))
-    if joint.dense is not None:
-        n, k = joint.dense.shape[:2]
+    if joint.dense is None:
+        return Prepared(joint, None, None, order)
+    n, k = joint.dense.shape[:2]
+    flat = joint.dense.reshape(n * k, -1)
+    # normalised first: at high rates the weights can be far below the smallest double
+    total = flat.sum(axis=1)
+    safe = np.where(total > 0, total, 1.0)
+    return Prepared(None, (flat / safe[:, None]).reshape(n, k, -1), total.reshape(n, k), order)
+
+
+def run_attempt(circuit, joint, order, rotations, bound: BoundNoise) -> np.ndarray:
+    """Unnormalised success branch S of a step on joint weights, shape (N, K, 4).
+
+    ``joint`` is a :class:`Joint` or (for many attempts on the same rows) its
+    :class:`Prepared` form, whose ``order`` is then used; ``order`` gives the role
+    (0 kept, then sacrificed) of each input in making order; ``rotations`` are in
+    role order, ints or (N,) arrays.
+    """
+    prepared = joint if isinstance(joint, Prepared) else prepare(joint, order)
+    order = prepared.order
+    if prepared.joint is None:
+        n, k = prepared.total.shape
     else:
-        n = max(f.shape[0] for f in joint.factors)
-        k = max(f.shape[1] for f in joint.factors)
+        factors = prepared.joint.factors
+        n = max(f.shape[0] for f in factors)
+        k = max(f.shape[1] for f in factors)
     rotations = tuple(r if np.ndim(r) == 0 else np.repeat(r, k) for r in rotations)
-    if joint.dense is not None:
+    if prepared.joint is None:
         size = len(order)
-        flat = joint.dense.reshape(n * k, -1)
-        # normalised first: at high rates the weights can be far below the smallest double
-        total = flat.sum(axis=1)
-        safe = np.where(total > 0, total, 1.0)
-        j = (flat / safe[:, None]).reshape((n * k,) + (4,) * size)
+        j = prepared.normalised.reshape((n * k,) + (4,) * size)
         j = np.moveaxis(j, tuple(range(1, size + 1)), tuple(1 + r for r in order))
         success, kept = run_joint(circuit, j, rotations, **bound.step)
-        return (kept * (success * total)[:, None]).reshape(n, k, 4)
+        return (kept * (success * prepared.total.reshape(-1))[:, None]).reshape(n, k, 4)
     by_role = [None] * len(order)
-    for f, role in zip(joint.factors, order, strict=True):
+    for f, role in zip(factors, order, strict=True):
         # one pair for every row and rate (a raw pair) goes in as one (4,) vector
         by_role[role] = f[0, 0] if f.shape[:2] == (1, 1) else np.broadcast_to(f, (n, k, 4))
     weights = np.ones(n * k)

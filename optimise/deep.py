@@ -43,6 +43,7 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
+from joblib import Parallel, delayed, effective_n_jobs
 
 from models.chain import (
     CODE_N_INPUTS,
@@ -265,44 +266,21 @@ def _origin(n, kept_level, kept_row, source_level, source_row, code):
     return out
 
 
-def _propose(library, d, profile, codes, options, gather):
-    """Every candidate of level d, evaluated for its figures only (waiting data at rate 0).
+def _work(library, d, profile, base, options) -> list:
+    """The candidate evaluations of level d as units, in a fixed order.
 
-    The figures of a pair (its Bell weights, costs, memory, rounds, time) need its
-    inputs' waiting data but not its own beyond rate 0, so the candidates are
-    first evaluated cheaply and only the pairs kept are made again with all the
-    waiting data they carry (:func:`_make`).
+    A unit is ``(kept level, source level or None, kept rows, source rows, codes)``:
+    one call of :func:`models.chain.advance` (source None: raw pairs or copies) or
+    :func:`models.chain.advance_sourced` on at most :data:`BATCH` rows. The units
+    are the same whatever the number of workers, so every row is computed by the
+    same call and the front does not depend on how the units are shared out.
     """
-    p1 = profile.noise.single_qubit
-    prev = library[d - 1]
-    base, want_base, want_twirl = base_codes(codes)
-    position = np.full(len(LINEAR_ROUNDS), -1)
-    position[base] = np.arange(len(base))
-
-    def offer(out, success, code, kept_level, kept_row, source_level, source_row):
-        pos = position[code]
-        out, new_codes, rows = add_twirled(out, code, want_base[pos], want_twirl[pos], p1)
-        ok = _filter(out, success[rows], options)
-        out = out.take(ok)
-        src = source_level if np.ndim(source_level) == 0 else source_level[rows][ok]
-        gather.add(
-            out,
-            state_keys(out.bell, out.weighted[:, :1], options["symmetry"]),
-            _origin(
-                len(out), kept_level, kept_row[rows][ok], src, source_row[rows][ok], new_codes[ok]
-            ),
-        )
-        gather.evaluations += len(code)
-
-    # rounds sacrificing raw pairs or copies of the kept pair
-    parent, code = valid_pairs(prev.batch, profile, base, options["dedupe"])
+    units = []
+    parent, code = valid_pairs(library[d - 1].batch, profile, base, options["dedupe"])
     for lo in range(0, len(code), BATCH):
-        sl = slice(lo, lo + BATCH)
-        out, success = advance(prev.batch, code[sl], profile, parent=parent[sl], level=0)
-        source = np.where(CODE_SAME[code[sl]], SAME, RAW)
-        offer(out, success, code[sl], d - 1, parent[sl], source, np.zeros_like(parent[sl]))
+        units.append((d - 1, None, parent[lo : lo + BATCH], None, code[lo : lo + BATCH]))
     if not options["trees"]:
-        return
+        return units
     # rounds sacrificing other made pairs: one side from level d - 1
     sourced = base[~CODE_SAME[base]]
     for a in range(d):
@@ -314,16 +292,93 @@ def _propose(library, d, profile, codes, options, gather):
             )
             for lo in range(0, len(code), BATCH):
                 sl = slice(lo, lo + BATCH)
-                out, success = advance_sourced(
-                    library[a].batch,
-                    library[b].batch,
-                    code[sl],
-                    profile,
-                    kept_index=ki[sl],
-                    source_index=si[sl],
-                    level=0,
-                )
-                offer(out, success, code[sl], a, ki[sl], b, si[sl])
+                units.append((a, b, ki[sl], si[sl], code[sl]))
+    return units
+
+
+def _evaluate_units(units, batches, profile, codes, options):
+    """Candidates of some units, merged and thinned (what a worker returns).
+
+    ``batches``: level -> the library pairs of that level the units use. Returns
+    ``(batch, keys, origin, evaluations)``, or None when no candidate passes.
+    """
+    p1 = profile.noise.single_qubit
+    base, want_base, want_twirl = base_codes(codes)
+    position = np.full(len(LINEAR_ROUNDS), -1)
+    position[base] = np.arange(len(base))
+    gather = _Candidates(options)
+    for kept_level, source_level, kept_row, source_row, code in units:
+        kept = batches[kept_level]
+        if source_level is None:
+            out, success = advance(kept, code, profile, parent=kept_row, level=0)
+            source_level = np.where(CODE_SAME[code], SAME, RAW)
+            source_row = np.zeros_like(kept_row)
+        else:
+            out, success = advance_sourced(
+                kept,
+                batches[source_level],
+                code,
+                profile,
+                kept_index=kept_row,
+                source_index=source_row,
+                level=0,
+            )
+        pos = position[code]
+        out, new_codes, rows = add_twirled(out, code, want_base[pos], want_twirl[pos], p1)
+        ok = _filter(out, success[rows], options)
+        out = out.take(ok)
+        src = source_level if np.ndim(source_level) == 0 else source_level[rows][ok]
+        origin = _origin(
+            len(out), kept_level, kept_row[rows][ok], src, source_row[rows][ok], new_codes[ok]
+        )
+        gather.add(out, state_keys(out.bell, out.weighted[:, :1], options["symmetry"]), origin)
+        gather.evaluations += len(code)
+    if not gather.parts:
+        return None
+    return gather.squeeze() + (gather.evaluations,)
+
+
+def _shares(units, pieces: int) -> list:
+    """``units`` cut into at most ``pieces`` runs of about equal rows, in order."""
+    rows = np.cumsum([len(u[4]) for u in units])
+    if not len(units):
+        return []
+    cuts = np.searchsorted(rows, rows[-1] * np.arange(1, pieces) / pieces, side="right")
+    bounds = np.unique(np.concatenate([[0], cuts, [len(units)]]))
+    return [units[a:b] for a, b in zip(bounds[:-1], bounds[1:], strict=True) if b > a]
+
+
+def _propose(library, d, profile, codes, options, gather, n_jobs):
+    """Every candidate of level d, evaluated for its figures only (waiting data at rate 0).
+
+    The figures of a pair (its Bell weights, costs, memory, rounds, time) need its
+    inputs' waiting data but not its own beyond rate 0, so the candidates are
+    first evaluated cheaply and only the pairs kept are made again with all the
+    waiting data they carry (:func:`_make`). The evaluations are shared out over
+    ``n_jobs`` workers of the active joblib backend; their results are gathered
+    in the order of the units, so the level is the same for any ``n_jobs``.
+    """
+    base, _, _ = base_codes(codes)
+    units = _work(library, d, profile, base, options)
+    jobs = effective_n_jobs(n_jobs)
+    shares = _shares(units, 1 if jobs == 1 else 2 * jobs)
+    tasks = []
+    for share in shares:
+        used = {u[0] for u in share} | {u[1] for u in share if u[1] is not None}
+        tasks.append((share, {lv: library[lv].batch for lv in used}))
+    if len(tasks) > 1:
+        outs = Parallel(n_jobs=n_jobs, return_as="generator")(
+            delayed(_evaluate_units)(share, batches, profile, codes, options)
+            for share, batches in tasks
+        )
+    else:
+        outs = (
+            _evaluate_units(share, batches, profile, codes, options) for share, batches in tasks
+        )
+    for out in outs:
+        if out is not None:
+            gather.add(*out[:3])
+            gather.evaluations += out[3]
 
 
 def _make(library, origin, profile, level) -> ChainBatch:
@@ -351,10 +406,10 @@ def _make(library, origin, profile, level) -> ChainBatch:
     return batch.take(np.argsort(np.concatenate(rows), kind="stable"))
 
 
-def _expand(library, d, profile, codes, options, out_level, seeds_here):
+def _expand(library, d, profile, codes, options, out_level, seeds_here, n_jobs):
     """Level d: candidates proposed, merged, thinned to the first layers, then made."""
     gather = _Candidates(options)
-    _propose(library, d, profile, codes, options, gather)
+    _propose(library, d, profile, codes, options, gather, n_jobs)
     batch, _, origin = gather.squeeze()
     values, maximise = objective_values(batch, options["objectives"])
     origin = origin[pareto_layers(values, maximise, options["layers"], options["width"])]
@@ -437,6 +492,7 @@ def deep_front(
     trees: bool = True,
     max_chain: int | None = None,
     on_level=None,
+    n_jobs: int | None = 1,
 ) -> DeepFront:
     """Breadth-first search over made pairs with Pareto pruning (see the module doc).
 
@@ -468,6 +524,10 @@ def deep_front(
         Most rounds in a front recipe's main chain (pairs with longer chains
         still serve as sacrificed pairs); ``limits.max_depth`` caps it too.
     on_level : callable(level, pairs, evaluations, seconds), optional
+    n_jobs : int or None
+        Workers of the active joblib backend (:func:`joblib.parallel_config`;
+        local processes by default) that share each level's evaluations; -1 for
+        all, None for the configured number. The front is the same for any value.
 
     Returns
     -------
@@ -508,7 +568,7 @@ def deep_front(
     for d in range(1, depth + 1):
         t0 = time.monotonic()
         out_level = (depth - d) * (WIDEST - 1) if grows else 0
-        level, n = _expand(library, d, profile, code_set, options, out_level, prefixes[d])
+        level, n = _expand(library, d, profile, code_set, options, out_level, prefixes[d], n_jobs)
         library.append(level)
         kept.append(len(level.batch))
         evaluations.append(n)

@@ -28,6 +28,7 @@ import time
 from dataclasses import dataclass
 
 import numpy as np
+from joblib import Parallel, delayed, effective_n_jobs
 
 from models.chain import (
     CODE_DOUBLE,
@@ -127,9 +128,10 @@ def describe_linear_space(depth: int, include_double: bool = True, restricted: b
     return f"every linear recipe of 1 to {depth} rounds, each round one of {what}"
 
 
-def _chunks(level: ChainBatch, n_jobs: int, per_state: int):
+def _chunks(level: ChainBatch, jobs: int, per_state: int):
+    """Row ranges of a level's chunks, for ``jobs`` workers (a count, not -1)."""
     n = len(level)
-    pieces = 1 if n * per_state < PARALLEL_MIN_ROWS or n_jobs == 1 else min(n, 8 * n_jobs)
+    pieces = 1 if n * per_state < PARALLEL_MIN_ROWS or jobs == 1 else min(n, 8 * jobs)
     # memory bound: at most ~2M rounds per chunk
     pieces = max(pieces, math.ceil(n * per_state / 2_000_000))
     bounds = np.linspace(0, n, pieces + 1).astype(int)
@@ -137,13 +139,17 @@ def _chunks(level: ChainBatch, n_jobs: int, per_state: int):
 
 
 def _expand_level(level, profile, codes, options, n_jobs):
-    """Chunk results as they come (in any order), parents shifted to level indices."""
-    ranges = _chunks(level, n_jobs, len(codes))
-    tasks = [({f: getattr(level, f)[a:b] for f in FIELDS}, a) for a, b in ranges]
-    if len(tasks) > 1 and n_jobs != 1:
-        from joblib import Parallel, delayed
+    """Chunk results in the order of the chunks, parents shifted to level indices.
 
-        outs = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator_unordered")(
+    The chunks run on the active joblib backend (:func:`joblib.parallel_config`;
+    local processes by default); taken in their order, the merges keep the same
+    one of equal partial recipes whichever worker finished first.
+    """
+    jobs = effective_n_jobs(n_jobs)
+    ranges = _chunks(level, jobs, len(codes))
+    tasks = [({f: getattr(level, f)[a:b] for f in FIELDS}, a) for a, b in ranges]
+    if len(tasks) > 1 and jobs != 1:
+        outs = Parallel(n_jobs=n_jobs, return_as="generator")(
             delayed(_shifted)(arrays, profile, codes, options, a) for arrays, a in tasks
         )
     else:
@@ -240,8 +246,9 @@ def exhaustive_front(
     limits : Limits, dict or None
         Recipes over a limit are left out. Memory and time never decrease along a
         chain, so a partial recipe over a limit is dropped with all its extensions.
-    n_jobs : int
-        Worker processes (joblib); -1 for all cores.
+    n_jobs : int or None
+        Workers of the active joblib backend (:func:`joblib.parallel_config`;
+        local processes by default); -1 for all, None for the configured number.
     include_double : bool
         Include double-selection rounds.
     codes : int array, optional

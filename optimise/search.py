@@ -34,7 +34,7 @@ from .progress import SearchProgress
 from .resume import fail_stale_trials, reask_abandoned, register_worker, registered_workers
 from .run import Run, load_run, same_values
 from .samplers import SlotSeededSampler, finished_count
-from .seeding import deep_layer, enqueue_known, exhaustive_layer
+from .seeding import deep_layer, enqueue_known, exhaustive_layer, release_layer_workers
 from .settings import SearchSettings
 from .space import is_linear_space
 from .storage import StorageSpec, open_resolved, resolve_storage
@@ -216,10 +216,14 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
         checkpoint("deep")
 
     with stop.interruptible():  # pure computation: a Ctrl-C ends it at once
-        exhaustive = exhaustive_layer(profile, run, settings, on_depth=on_depth)
-        baselines = baseline_results(profile, settings.max_depth)
-        known = [r.notation for r in exhaustive.results] + [b.result.notation for b in baselines]
-        deep = deep_layer(profile, settings, known, on_level=on_level)
+        try:
+            exhaustive = exhaustive_layer(profile, run, settings, on_depth=on_depth)
+            baselines = baseline_results(profile, settings.max_depth)
+            known = [r.notation for r in exhaustive.results]
+            known += [b.result.notation for b in baselines]
+            deep = deep_layer(profile, settings, known, on_level=on_level)
+        finally:
+            release_layer_workers()
     me = worker_identity()
     register_worker(study, me)  # before any trial is asked: see optimise.resume
     done_before = finished_count(study)  # trials asked again below are this run's work

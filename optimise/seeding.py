@@ -2,6 +2,14 @@
 
 from __future__ import annotations
 
+from joblib.parallel import (
+    LokyBackend,
+    MultiprocessingBackend,
+    SequentialBackend,
+    ThreadingBackend,
+    get_active_backend,
+)
+
 from models.notation import parse_recipe
 
 from .deep import DeepFront, deep_front
@@ -12,6 +20,9 @@ from .space import recipe_params
 # automatic depth: expand a depth only while it needs at most this many rounds
 # evaluated, which keeps the exhaustive layer to seconds (see tests/benchmarks)
 AUTO_MAX_EVALUATIONS = 3_000_000
+
+# joblib backends on this machine: the search's --workers says how many to use
+LOCAL_BACKENDS = (LokyBackend, MultiprocessingBackend, SequentialBackend, ThreadingBackend)
 
 NO_EXHAUSTIVE_LAYER = ExhaustiveFront(
     results=[],
@@ -34,6 +45,34 @@ NO_DEEP_LAYER = DeepFront(
     space="no deep layer",
     seconds=0.0,
 )
+
+
+def layer_jobs(settings) -> int | None:
+    """Workers of the exhaustive and deep layers of a search.
+
+    On this machine (joblib's local backends, local processes by default) the
+    search's ``workers``, so one worker runs the layers in its own process; on a
+    cluster backend the caller chose with :func:`joblib.parallel_config` (Dask),
+    the number configured there, or all of the cluster's workers.
+    """
+    backend, configured = get_active_backend()
+    if isinstance(backend, LOCAL_BACKENDS):
+        return settings.workers
+    return -1 if configured is None else configured
+
+
+def release_layer_workers() -> None:
+    """End the local processes the layers ran on, once they are done.
+
+    joblib keeps its local worker processes idle for minutes after the work, to
+    be used again; a search has no more use for them, and they would outlive a
+    killed search (holding its output streams open).
+    """
+    backend, _ = get_active_backend()
+    if isinstance(backend, LokyBackend):
+        from joblib.externals.loky import get_reusable_executor
+
+        get_reusable_executor().shutdown(wait=True)
 
 
 def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
@@ -59,7 +98,7 @@ def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
         max_depth=depth if requested is None else min(requested, depth),
         objectives=settings.objectives,
         limits=settings.limits,
-        n_jobs=-1,
+        n_jobs=layer_jobs(settings),
         max_evaluations=AUTO_MAX_EVALUATIONS if requested is None else None,
         on_depth=on_depth,
     )
@@ -118,4 +157,5 @@ def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
         limits=settings.limits,
         seeds=seeds,
         on_level=on_level,
+        n_jobs=layer_jobs(settings),
     )

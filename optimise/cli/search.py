@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import sys
 from pathlib import Path
 
@@ -43,7 +44,9 @@ def add_parser(sub, parents) -> None:
         "  stillroom search mine.toml --time 2h --trials 100000   overnight\n"
         "  stillroom search mine.toml --objectives fidelity,yield,memory --max-memory 3\n"
         "  stillroom search mine.toml --storage postgresql://host/db --workers 2\n"
-        "      (run the same command on several machines to share one study)",
+        "      (run the same command on several machines to share one study)\n"
+        "  stillroom search mine.toml --dask-scheduler tcp://HOST:8786\n"
+        "      (the exhaustive and deep layers on a Dask cluster)",
     )
     common.add_profile_argument(p)
     p.add_argument(
@@ -150,7 +153,16 @@ def add_parser(sub, parents) -> None:
         type=common.positive_int,
         default=1,
         metavar="N",
-        help="worker processes on this machine (default: %(default)s)",
+        help="processes on this machine for every phase: the exhaustive and deep layers, "
+        "then the study (default: %(default)s: everything in this process)",
+    )
+    p.add_argument(
+        "--dask-scheduler",
+        type=scheduler_address,
+        metavar="ADDRESS",
+        help="run the exhaustive and deep layers on the Dask cluster whose scheduler is at "
+        "ADDRESS, e.g. tcp://HOST:8786 (needs pip install 'stillroom[cluster]'); the study "
+        "still runs in --workers processes here",
     )
     p.add_argument("--seed", type=int, default=0, help="sampler seed (default: %(default)s)")
     p.add_argument(
@@ -164,6 +176,18 @@ def add_parser(sub, parents) -> None:
     add_row_options(p)
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(handler=run)
+
+
+def scheduler_address(text: str) -> str:
+    """``--dask-scheduler``: a ``SCHEME://HOST:PORT`` address (:mod:`optimise.cluster`)."""
+    import argparse
+
+    from ..cluster import check_address
+
+    try:
+        return check_address(text)
+    except ValueError as error:
+        raise argparse.ArgumentTypeError(str(error)) from None
 
 
 # the option that sets each SearchSettings field (and each limit), so that an error
@@ -223,14 +247,21 @@ def run(args) -> int:
             out.print(f"profile: {label}")
             out.print(start_message(run_dir, settings))
 
+    layers = contextlib.nullcontext()
+    if args.dask_scheduler is not None:
+        from ..cluster import dask_layers
+
+        layers = dask_layers(args.dask_scheduler)
     try:
-        outcome = run_search(
-            profile,
-            run_dir=run_dir,
-            settings=settings,
-            progress=not args.no_progress,
-            on_start=on_start,
-        )
+        # connected (or refused) before the search writes anything
+        with layers:
+            outcome = run_search(
+                profile,
+                run_dir=run_dir,
+                settings=settings,
+                progress=not args.no_progress,
+                on_start=on_start,
+            )
     except KeyboardInterrupt:
         print(INTERRUPTED, file=sys.stderr)
         return 130

@@ -44,6 +44,18 @@ OPTION_VALUES = {
     "--name": ["../escape", "", ".", "..", "a/b", "x" * 300, "-dash", " sp", "a b", "\u00e9"],
     "--runs-dir": [""],
     "--storage": ["", "ftp://h/x", "sqlite://x", "journal:", "notes.txt", "mysql+nodriver://u@h/d"],
+    "--dask-scheduler": [
+        "",
+        "localhost:8786",
+        "http://h:8786",
+        "tcp://",
+        "tcp://h",
+        "tcp://h:0",
+        "tcp://h:99999",
+        "tcp://h:x",
+        "tcp://h:8786/path",
+        "tcp://" + "h" * 400 + ":1",
+    ],
 }
 SEARCH_CASES = [
     ["search", option, value] for option, values in OPTION_VALUES.items() for value in values

@@ -37,6 +37,7 @@ from optimise.exhaustive import exhaustive_front
 
 sys.path.insert(0, str(Path(__file__).parent))
 
+from layer_support import CountingParallel, deep_bytes, split_small  # noqa: E402
 from test_exhaustive import PROFILES, SMALL, front_points  # noqa: E402
 
 RAW_CODES = [c for c, r in enumerate(LINEAR_ROUNDS) if r.sacrificed == "raw"]
@@ -215,3 +216,35 @@ def test_equivalent_recipes_listed_and_representative_fixed():
             a, b = evaluate(rep, profile), evaluate(other, profile)
             assert_allclose(a.fidelity, b.fidelity, rtol=1e-12)
             assert_allclose(a.raw_pairs_per_output, b.raw_pairs_per_output, rtol=1e-12)
+
+
+@pytest.mark.parametrize(
+    "backend, objectives",
+    [
+        ("loky", ("fidelity", "yield")),
+        ("threading", ("fidelity", "yield", "memory", "time")),
+    ],
+)
+def test_the_front_is_byte_identical_for_any_workers_and_backend(monkeypatch, backend, objectives):
+    # each level's units shared out over two workers of a joblib backend, their
+    # candidates merged and thinned there: the same front, byte for byte, as one
+    # process (the merges keep what the whole level keeps; results taken in order)
+    from joblib import parallel_config
+
+    from optimise import deep as deep_module
+
+    split_small(monkeypatch)
+    monkeypatch.setattr(deep_module, "Parallel", CountingParallel)
+    monkeypatch.setattr(CountingParallel, "calls", 0)
+    profile = PROFILES["memory"]
+    seeds = [r.notation for r in exhaustive_front(profile, max_depth=2).results]
+    settings = dict(max_depth=4, width=6, objectives=objectives, seeds=seeds)
+    serial = deep_front(profile, n_jobs=1, **settings)
+    assert CountingParallel.calls == 0
+    with parallel_config(backend=backend):
+        shared = deep_front(profile, n_jobs=2, **settings)
+    assert CountingParallel.calls == 4  # every level shared out
+    assert deep_bytes(shared) == deep_bytes(serial)
+    assert len(serial.results) > 3 and any(
+        not parse_recipe(r.notation).is_linear for r in serial.results
+    )

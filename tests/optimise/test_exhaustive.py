@@ -13,6 +13,8 @@ External references:
 
 import itertools
 import math
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -24,10 +26,15 @@ from models.noise import NodeNoise
 from models.profile import Profile
 from models.recipes import Round
 from models.states import werner
+from optimise import exhaustive
 from optimise.exhaustive import exhaustive_front
 from optimise.levels import TWIRL_PARTNER, UNTWIRLED, add_twirled, state_keys, symmetry_of
 from optimise.limits import Limits
 from optimise.pareto import pareto_mask, quantise
+
+sys.path.insert(0, str(Path(__file__).parent))
+
+from layer_support import CountingParallel, exhaustive_bytes, split_small  # noqa: E402
 
 PROFILES = {
     # noisy rotations: no relabelling merge, identical-input shortcut on
@@ -295,3 +302,18 @@ def test_an_evaluation_bound_with_decaying_memories_carries_only_the_waits_it_ne
     plain = exhaustive_front(profile, max_depth=reached)
     assert front_points(bounded) == front_points(plain)
     assert bounded.states_per_depth == plain.states_per_depth
+
+
+def test_the_front_is_byte_identical_for_any_workers(monkeypatch):
+    # a level cut into chunks run by two local processes, their results taken in
+    # the chunks' order: the same front and counts, byte for byte, as one process
+    split_small(monkeypatch)
+    monkeypatch.setattr(exhaustive, "Parallel", CountingParallel)
+    monkeypatch.setattr(CountingParallel, "calls", 0)
+    profile = PROFILES["memory"]
+    serial = exhaustive_front(profile, max_depth=2, objectives=("fidelity", "yield", "memory"))
+    shared = exhaustive_front(
+        profile, max_depth=2, objectives=("fidelity", "yield", "memory"), n_jobs=2
+    )
+    assert CountingParallel.calls == 1  # depth 1 is one state: depth 2 was shared out
+    assert exhaustive_bytes(shared) == exhaustive_bytes(serial)

@@ -18,8 +18,8 @@ from models.noise import NodeNoise
 from models.profile import Profile
 from models.states import werner
 from optimise.errors import RunError
-from optimise.search import load_run, run_search
 from optimise.profiles import profile_to_toml
+from optimise.search import load_run, run_search
 from optimise.storage import open_storage
 
 ROOT = Path(__file__).resolve().parents[2]

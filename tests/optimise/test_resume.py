@@ -7,8 +7,8 @@ Ctrl-C (KeyboardInterrupt) inside a trial.
 """
 
 import datetime
-import re
 import os
+import re
 import signal
 import socket
 import subprocess
@@ -27,7 +27,6 @@ from optimise.processes import TEST_KILL_ENV
 from optimise.profiles import profile_to_toml
 from optimise.resume import is_stale
 from optimise.search import load_run, run_search
-from optimise.space import recipe_from_params
 from optimise.storage import open_storage
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -26,7 +26,6 @@ from optimise.errors import RunError
 from optimise.processes import TEST_KILL_ENV
 from optimise.profiles import profile_to_toml
 from optimise.run import LOCK_FILE, Run
-from optimise.search import run_search
 from optimise.storage import open_storage
 
 ROOT = Path(__file__).resolve().parents[2]
