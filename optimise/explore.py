@@ -133,6 +133,34 @@ def _taken_ids(study, max_depth: int) -> set:
     return taken
 
 
+class FrontExplorer:
+    """:func:`explore_front` for one search, called after every trial.
+
+    The front is listed and the study asked only when ``finished`` has passed a
+    new multiple of :data:`EVERY` (the first call always looks: a run resumed just
+    after a due point), and never once the budget is spent.
+
+    Parameters
+    ----------
+    max_depth : int
+    budget : int
+        The study's total trials: nothing is queued that no trial would run.
+    """
+
+    def __init__(self, max_depth: int, budget: int):
+        self.max_depth = max_depth
+        self.budget = budget
+        self.looked_at = None  # the last mark looked at
+
+    def __call__(self, study, front_notations, finished: int) -> int:
+        """``front_notations``: a callable giving the current front, highest fidelity first."""
+        mark = (finished // EVERY) * EVERY
+        if finished >= self.budget or mark == self.looked_at:
+            return 0
+        self.looked_at = mark
+        return explore_front(study, front_notations(), self.max_depth, finished)
+
+
 def explore_front(study, front_notations, max_depth: int, finished: int) -> int:
     """Queue neighbours of the front when ``finished`` has passed a multiple of EVERY.
 

@@ -24,7 +24,7 @@ import optuna
 from optuna.trial import TrialState
 
 from .errors import InputError, RunError
-from .explore import explore_front
+from .explore import FrontExplorer
 from .front import BaselineResult, baseline_results
 from .limits import Limits
 from .objective import Objective
@@ -196,24 +196,28 @@ def budget_used(study) -> int:
     )
 
 
+def _layer_note(bar, phase: str, template: str):
+    """A layer's callback after each depth or level: a progress note, then a checkpoint."""
+
+    def note(depth, count, evaluations, seconds):
+        if bar.enabled:
+            bar.note(template.format(depth, count, evaluations, seconds))
+        checkpoint(phase)
+
+    return note
+
+
 def _search(profile, run: Run, settings, recorded, study, spec, started, bar, stop):
     depth = settings.depth_cap
 
-    def on_depth(d, states, evaluations, seconds):
-        if bar.enabled:
-            bar.note(
-                f"exhaustive layer: depth {d}, {states:,d} distinct states, "
-                f"{evaluations:,d} rounds evaluated in {seconds:.1f} s"
-            )
-        checkpoint("exhaustive")
-
-    def on_level(d, pairs, evaluations, seconds):
-        if bar.enabled:
-            bar.note(
-                f"deep layer: level {d}, {pairs:,d} pairs kept of "
-                f"{evaluations:,d} rounds evaluated in {seconds:.1f} s"
-            )
-        checkpoint("deep")
+    on_depth = _layer_note(
+        bar,
+        "exhaustive",
+        "exhaustive layer: depth {}, {:,d} distinct states, {:,d} rounds evaluated in {:.1f} s",
+    )
+    on_level = _layer_note(
+        bar, "deep", "deep layer: level {}, {:,d} pairs kept of {:,d} rounds evaluated in {:.1f} s"
+    )
 
     with stop.interruptible():  # pure computation: a Ctrl-C ends it at once
         try:
@@ -277,7 +281,8 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
         if budget_used(study) < settings.n_trials and (left is None or left > 0):
             try:
                 if settings.workers == 1:
-                    _optimize_here(study, profile, settings, spec, left, tracker, bar, stop)
+                    shared = others_may_write(spec, run, settings.workers)
+                    _optimize_here(study, profile, settings, shared, left, tracker, bar, stop)
                 else:
                     _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop)
             finally:
@@ -355,32 +360,48 @@ def worker_offset(study, me: dict) -> int:
     return sum(1 for w in others if w.get("host") != here or is_running(w))
 
 
-def _explore(study, settings, tracker) -> None:
-    """Queue neighbours of the current front when due (see :mod:`optimise.explore`)."""
-    finished = len(tracker.finished)
-    if finished >= settings.n_trials:
-        return  # the budget is spent: nothing queued that no trial would run
-    notations = [e["recipe"] for e in tracker.entries()]
-    explore_front(study, notations, settings.depth_cap, finished)
+def _explorer(settings, tracker):
+    """After each trial: queue neighbours of the front when due (:mod:`optimise.explore`)."""
+    explorer = FrontExplorer(settings.depth_cap, settings.n_trials)
+
+    def notations():
+        return [e["recipe"] for e in tracker.entries()]
+
+    return lambda study: explorer(study, notations, len(tracker.finished))
 
 
-def _optimize_here(study, profile, settings, spec, left, tracker, bar, stop):
-    if spec.shared:
+def others_may_write(spec: StorageSpec, run: Run, workers: int) -> bool:
+    """Whether processes other than this search may add trials to its study.
+
+    A storage file in the run folder is used only by the search that holds the
+    folder's lock and its own workers: one process alone there need not count the
+    study again after each trial.
+    """
+    if not spec.shared:
+        return False
+    if workers > 1 or spec.kind == "rdb":
+        return True
+    return Path(spec.target).parent != run.folder.resolve()
+
+
+def _optimize_here(study, profile, settings, shared, left, tracker, bar, stop):
+    if shared:
         offset = worker_offset(study, worker_identity())
         study.sampler = SlotSeededSampler(settings.sampler_settings, worker=offset)
-    _explore(study, settings, tracker)  # a run resumed just after a due point
+    explore = _explorer(settings, tracker)
+    explore(study)
 
     def after(study, trial):
         if tracker.add_trial(trial):
             tracker.write(None)
-        _explore(study, settings, tracker)
+        explore(study)
         bar.update(bar.done + 1, tracker.best_fidelity(), tracker.size())
 
     study.optimize(
-        _objective(profile, settings, spec.shared),
+        _objective(profile, settings, shared),
         n_trials=max(0, settings.n_trials - budget_used(study)),
         timeout=left,
-        callbacks=[_Between(settings.n_trials, spec.shared, lambda: stop.requested, after)],
+        callbacks=[_Between(settings.n_trials, shared, lambda: stop.requested, after)],
         catch=(ValueError, ArithmeticError),
     )
 
@@ -455,6 +476,7 @@ def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
     ]
     for p in processes:
         p.start()
+    explore = _explorer(settings, tracker)
     try:
         while any(p.is_alive() for p in processes):
             if stop.requested:
@@ -464,8 +486,8 @@ def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
             trials = monitor.get_trials(deepcopy=False)
             if tracker.add_trials(trials):
                 tracker.write(None)
-            _explore(monitor, settings, tracker)
-            bar.update(finished_count(monitor), tracker.best_fidelity(), tracker.size())
+            explore(monitor)
+            bar.update(len(tracker.finished), tracker.best_fidelity(), tracker.size())
     finally:
         stop_event.set()
         for p in processes:

@@ -22,7 +22,7 @@ from .objectives import OBJECTIVES, maximised, values_from_dict
 from .pareto import quantise
 from .rows import representative_order
 from .run import now_iso, stillroom_version
-from .samplers import ERROR_ATTR
+from .samplers import counts_towards_budget
 from .space import describe_space
 
 
@@ -183,11 +183,10 @@ class FrontTracker:
 
     def add_trial(self, trial) -> bool:
         """Take a finished trial into account; True if the front changed."""
-        state = trial.state.name
-        if state in ("COMPLETE", "PRUNED") or (state == "FAIL" and ERROR_ATTR in trial.user_attrs):
+        if counts_towards_budget(trial):
             self.finished.add(trial.number)
         entry = trial.user_attrs.get("result")
-        if state != "COMPLETE" or entry is None:
+        if trial.state.name != "COMPLETE" or entry is None:
             return False
         # studies written before the depth attribute was dropped still carry it
         depth = (

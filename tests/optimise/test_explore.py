@@ -44,3 +44,21 @@ def test_queued_once_per_mark_and_never_a_recipe_the_study_has():
     # round-robin: both front recipes got their turn, the first one first
     names = notations([t.system_attrs["fixed_params"] for t in waiting[1:]], 4)
     assert names[0] == "sY.sX.sY" and names[1] == notations(neighbours("pY", 4), 4)[0]
+
+
+def test_the_search_looks_at_the_front_only_when_a_mark_is_passed():
+    from optimise.explore import FrontExplorer
+
+    study = optuna.create_study(directions=["maximize", "maximize"])
+    looked = []
+
+    def front():
+        looked.append(1)
+        return ["sY.sX"]
+
+    explorer = FrontExplorer(4, budget=3 * EVERY)
+    for finished in range(3 * EVERY + 5):
+        explorer(study, front, finished)
+    # the first call (a resume may be due), then marks EVERY and 2 EVERY; not at the budget
+    assert len(looked) == 3
+    assert sum(t.state.name == "WAITING" for t in study.get_trials()) == 2 * SHARE
