@@ -158,9 +158,7 @@ class ChainBatch:
         if len(shape) != 3 or shape[0] != n or shape[2] != 4 or shape[1] < 1:
             raise ValueError(f"weighted has shape {shape}; expected ({n}, K, 4)")
         if np.shape(self.deficit) != shape[:2]:
-            raise ValueError(
-                f"deficit has shape {np.shape(self.deficit)}; expected {shape[:2]}"
-            )
+            raise ValueError(f"deficit has shape {np.shape(self.deficit)}; expected {shape[:2]}")
 
     def __len__(self) -> int:
         return self.bell.shape[0]
@@ -183,20 +181,24 @@ class ChainBatch:
         return Weighted(self.weighted, self.deficit)
 
 
-def start_chains(profile, n: int, *, rounds_ahead: int = 0) -> ChainBatch:
+def start_chains(profile, n: int, *, rounds_ahead: int = 0, widest: int = WIDEST) -> ChainBatch:
     """``n`` chains that have made one raw pair each (no round yet).
 
     ``rounds_ahead``: how many rounds will be applied at most; the chains carry
     their time-weighted states at the rates those rounds need (level
-    ``rounds_ahead * (WIDEST - 1)`` of the rate lattice; with perfect memories
-    one rate whatever the number).
+    ``rounds_ahead * (widest - 1)`` of the rate lattice; with perfect memories
+    one rate whatever the number). ``widest``: the most inputs of a round that
+    may be applied (default the built-in kinds'; a general check round over n
+    pairs needs n).
     """
     if not (isinstance(n, (int, np.integer)) and n >= 0):
         raise ValueError(f"n = {n!r} must be an integer >= 0")
     if not (isinstance(rounds_ahead, (int, np.integer)) and rounds_ahead >= 0):
         raise ValueError(f"rounds_ahead = {rounds_ahead!r} must be an integer >= 0")
+    if not (isinstance(widest, (int, np.integer)) and widest >= 2):
+        raise ValueError(f"widest = {widest!r} must be an integer >= 2")
     bound = profile.bound()
-    raw = bound.raw_weighted(int(rounds_ahead) * (WIDEST - 1))
+    raw = bound.raw_weighted(int(rounds_ahead) * (int(widest) - 1))
     return ChainBatch(
         np.tile(profile.raw, (n, 1)),
         np.ones(n),
@@ -208,8 +210,12 @@ def start_chains(profile, n: int, *, rounds_ahead: int = 0) -> ChainBatch:
     )
 
 
-def _lattice(chains: ChainBatch, bound, out_level=None):
-    """A rate lattice holding everything a round needs, and the number of output rates."""
+def _lattice(chains: ChainBatch, bound, out_level=None, span: int = WIDEST - 1):
+    """A rate lattice holding everything a round needs, and the number of output rates.
+
+    ``span``: the most sacrificed pairs of the rounds applied (the levels a round
+    adds to its output's).
+    """
     size = chains.weighted.shape[1]
     if not bound.lattice(0).grows:
         return bound.lattice(0), 1
@@ -218,13 +224,13 @@ def _lattice(chains: ChainBatch, bound, out_level=None):
         top += 1
     level = bound.lattice(top).level_of(size)
     if out_level is None:
-        out_level = level - (WIDEST - 1)
+        out_level = level - span
         if out_level < 0:
             raise ValueError(
-                f"these chains carry waiting data for {level // (WIDEST - 1)} more rounds; "
+                f"these chains carry waiting data for {level // span} more rounds; "
                 "start them with start_chains(profile, n, rounds_ahead=...) large enough"
             )
-    lattice = bound.lattice(max(level, out_level + WIDEST - 1))
+    lattice = bound.lattice(max(level, out_level + span))
     return lattice, lattice.size(out_level)
 
 
@@ -511,19 +517,106 @@ def advance_every(chains: ChainBatch, codes, profile) -> tuple[ChainBatch, np.nd
     return _finish(rows, all_codes, branch.reshape(-1, k, 4), bound, lattice)
 
 
+def advance_rounds(
+    chains: ChainBatch, rounds, which, profile, *, parent=None, level=None
+) -> tuple[ChainBatch, np.ndarray]:
+    """Apply ``rounds[which[i]]`` to chain ``parent[i]``: rounds of any kind, given as rounds.
+
+    What :func:`advance` does for rounds that have no code: general check rounds
+    over up to five pairs (:mod:`models.circuits`), with fresh raw pairs or
+    copies of the chain's pair as sacrificed pairs. Same model (making order,
+    waits, retries, re-twirl, costs) and the same figures as
+    :func:`models.evaluate.evaluate` to rounding; vectorised over the rows of
+    each round, with a Python loop over the distinct rounds only.
+
+    Parameters
+    ----------
+    chains : ChainBatch
+    rounds : sequence of models.recipes.Round
+        Rounds without a source (``sacrificed`` ``"raw"`` or ``"same"``).
+    which : int array, shape (N,)
+        Index into ``rounds`` of each row's round.
+    profile : models.Profile
+    parent : int array, shape (N,), optional
+        Chain of each row (default ``arange(N)``, one row per chain).
+    level : int, optional
+        Level of the rate lattice the output carries (default: the chains' less
+        the most sacrificed pairs of ``rounds``).
+
+    Returns
+    -------
+    chains : ChainBatch of N rows
+    success : ndarray, shape (N,)
+
+    Examples
+    --------
+    >>> from models.profile import Profile
+    >>> from models.states import werner
+    >>> profile = Profile(tuple(werner(0.7)))
+    >>> rounds = [Round("01/Z/0", "same", (2, 2)), Round("single", "same", "Y")]
+    >>> out, p = advance_rounds(start_chains(profile, 1), rounds, [0, 1], profile, parent=[0, 0])
+    >>> bool(np.allclose(out.bell[0], out.bell[1])), round(float(p[0]), 6)
+    (True, 0.68)
+    """
+    rounds = tuple(rounds)
+    if not rounds or any(not isinstance(r, Round) or r.source is not None for r in rounds):
+        raise ValueError("rounds must be a non-empty sequence of Round without a source")
+    which = np.asarray(which, dtype=np.intp)
+    n = which.size
+    parent = np.arange(n) if parent is None else np.asarray(parent, dtype=np.intp)
+    if which.shape != (n,) or parent.shape != (n,):
+        raise ValueError(
+            f"which and parent have shapes {which.shape} and {parent.shape}; expected (N,) both"
+        )
+    if n and (which.min() < 0 or which.max() >= len(rounds)):
+        raise ValueError(f"which holds indices outside [0, {len(rounds) - 1}]")
+    n_inputs = np.array([r.n_inputs for r in rounds], dtype=np.intp)
+    bound = profile.bound()
+    lattice, k = _lattice(chains, bound, level, span=int(n_inputs.max()) - 1)
+    branch = np.empty((n, k, 4))
+    for i, r in enumerate(rounds):
+        group = np.flatnonzero(which == i)
+        if not group.size:
+            continue
+        kind = STEP_KINDS[r.selection]
+        states, inverse = np.unique(parent[group], return_inverse=True)
+        made = _made(chains.take(states), r.sacrificed == "same", kind.n_inputs, bound, lattice)
+        joint = joint_waits(made, lattice, k).take(inverse.ravel())
+        order = tuple(range(kind.n_inputs))
+        branch[group] = run_attempt(kind.circuit, joint, order, r.rotations, bound)
+    same = np.array([r.sacrificed == "same" for r in rounds])[which]
+    twirled = np.array([r.twirl for r in rounds])[which]
+    return _finish_rounds(
+        chains.take(parent), same, n_inputs[which] - 1, twirled, branch, bound, lattice
+    )
+
+
 def _finish(chains, codes, branch, bound, lattice) -> tuple[ChainBatch, np.ndarray]:
     """Retries, exchange wait, re-twirl, costs, memory and times after the attempts."""
+    return _finish_rounds(
+        chains,
+        CODE_SAME[codes],
+        CODE_N_INPUTS[codes] - 1,
+        CODE_TWIRL[codes],
+        branch,
+        bound,
+        lattice,
+    )
+
+
+def _finish_rounds(
+    chains, same, n_sacrificed, twirled, branch, bound, lattice
+) -> tuple[ChainBatch, np.ndarray]:
+    """:func:`_finish` for rounds given by what it needs of them, one entry per row."""
     k = branch.shape[1]
-    same = CODE_SAME[codes]
-    n_sacrificed = CODE_N_INPUTS[codes] - 1
     raw = bound.raw_weighted(0 if not lattice.grows else int(lattice.levels[k - 1]))
     own = chains.deficit[:, :k]
     sacrificed = np.where(same[:, None], own, raw.deficit[:, :k])
     deficit = joint_deficit([own])
-    for i in range(WIDEST - 1):
+    for i in range(int(n_sacrificed.max(initial=0))):
         more = joint_deficit([deficit, sacrificed])
         deficit = np.where((n_sacrificed > i)[:, None], more, deficit)
-    success, weighted = retry(branch, deficit, bound, lattice, twirled=CODE_TWIRL[codes])
+    success, weighted = retry(branch, deficit, bound, lattice, twirled=twirled)
     cost = chains.raw_pairs + n_sacrificed * np.where(same, chains.raw_pairs, 1.0)
     time_s = chains.time_s + n_sacrificed * np.where(same, chains.time_s, bound.raw_time_s)
     ok = success > 0

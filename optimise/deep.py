@@ -50,14 +50,17 @@ from models.chain import (
     CODE_ROTATIONS,
     CODE_SAME,
     LINEAR_ROUNDS,
+    N_CODES,
     WIDEST,
     ChainBatch,
     advance,
+    advance_rounds,
     advance_sourced,
     linear_codes,
     start_chains,
 )
 from models.evaluate import evaluate
+from models.kinds import step_kind
 from models.notation import as_recipe
 from models.recipes import Recipe, Round
 
@@ -103,6 +106,8 @@ class DeepFront:
         Rounds evaluated at each level.
     depth, layers, width : int
         The settings (``width`` 0: unlimited).
+    general : tuple of str
+        The general check rounds offered (their selections), besides the built-in kinds.
     space : str
         One sentence naming what was searched.
     seconds : float
@@ -117,9 +122,10 @@ class DeepFront:
     width: int
     space: str
     seconds: float
+    general: tuple = ()
 
 
-def describe_deep_space(depth: int, layers: int, width: int) -> str:
+def describe_deep_space(depth: int, layers: int, width: int, general: int = 0) -> str:
     """One sentence naming the deep layer's search.
 
     Examples
@@ -140,9 +146,15 @@ def describe_deep_space(depth: int, layers: int, width: int) -> str:
             if width
             else "every pair"
         )
+    rounds = (
+        f", and {general} general check round{'s' if general != 1 else ''} with raw pairs or "
+        "copies, one rotation for every input or for the kept pair"
+        if general
+        else ""
+    )
     return (
         f"trees of up to {depth} levels built from made pairs (pumping with raw pairs, "
-        f"copies or other made pairs, every rotation), keeping {kept}"
+        f"copies or other made pairs, every rotation{rounds}), keeping {kept}"
     )
 
 
@@ -279,6 +291,14 @@ def _work(library, d, profile, base, options) -> list:
     parent, code = valid_pairs(library[d - 1].batch, profile, base, options["dedupe"])
     for lo in range(0, len(code), BATCH):
         units.append((d - 1, None, parent[lo : lo + BATCH], None, code[lo : lo + BATCH]))
+    if options["general"]:
+        # general rounds carry codes N_CODES + their index in options["general"];
+        # the untwirled ones are evaluated, their twirled partners follow from them
+        rows = np.arange(len(library[d - 1].batch))
+        untwirled = N_CODES + np.arange(0, len(options["general"]), 2)
+        parent, code = np.repeat(rows, untwirled.size), np.tile(untwirled, rows.size)
+        for lo in range(0, len(code), BATCH):
+            units.append((d - 1, None, parent[lo : lo + BATCH], None, code[lo : lo + BATCH]))
     if not options["trees"]:
         return units
     # rounds sacrificing other made pairs: one side from level d - 1
@@ -307,8 +327,24 @@ def _evaluate_units(units, batches, profile, codes, options):
     position = np.full(len(LINEAR_ROUNDS), -1)
     position[base] = np.arange(len(base))
     gather = _Candidates(options)
+    general = options["general"]
     for kept_level, source_level, kept_row, source_row, code in units:
         kept = batches[kept_level]
+        if source_level is None and code[0] >= N_CODES:
+            out, success = advance_rounds(
+                kept, general, code - N_CODES, profile, parent=kept_row, level=0
+            )
+            same = np.array([general[c - N_CODES].sacrificed == "same" for c in code])
+            out, new_codes, rows = add_twirled(
+                out, code, np.ones(code.size, bool), np.ones(code.size, bool), p1, partner=code + 1
+            )
+            ok = _filter(out, success[rows], options)
+            out = out.take(ok)
+            src = np.where(same, SAME, RAW)[rows][ok]
+            origin = _origin(len(out), kept_level, kept_row[rows][ok], src, 0, new_codes[ok])
+            gather.add(out, state_keys(out.bell, out.weighted[:, :1], options["symmetry"]), origin)
+            gather.evaluations += len(code)
+            continue
         if source_level is None:
             out, success = advance(kept, code, profile, parent=kept_row, level=0)
             source_level = np.where(CODE_SAME[code], SAME, RAW)
@@ -381,14 +417,22 @@ def _propose(library, d, profile, codes, options, gather, n_jobs):
             gather.evaluations += out[3]
 
 
-def _make(library, origin, profile, level) -> ChainBatch:
+def _make(library, origin, profile, level, general=()) -> ChainBatch:
     """The pairs of ``origin`` rows, carrying waiting data up to ``level``."""
     pieces, rows = [], []
-    combos = np.unique(origin[:, [0, 2]], axis=0)
-    for kept_level, source_level in combos:
-        here = np.flatnonzero((origin[:, 0] == kept_level) & (origin[:, 2] == source_level))
+    is_general = origin[:, 4] >= N_CODES
+    combos = np.unique(np.column_stack([origin[:, [0, 2]], is_general]), axis=0)
+    for kept_level, source_level, by_round in combos:
+        here = np.flatnonzero(
+            (origin[:, 0] == kept_level) & (origin[:, 2] == source_level) & (is_general == by_round)
+        )
         kept = library[kept_level].batch
-        if source_level < 0:
+        if by_round:
+            which = origin[here, 4] - N_CODES
+            out, _ = advance_rounds(
+                kept, general, which, profile, parent=origin[here, 1], level=level
+            )
+        elif source_level < 0:
             out, _ = advance(kept, origin[here, 4], profile, parent=origin[here, 1], level=level)
         else:
             out, _ = advance_sourced(
@@ -422,7 +466,11 @@ def _expand(library, d, profile, codes, options, out_level, seeds_here, n_jobs):
         src = np.where(CODE_SAME[last], SAME, RAW)
         seeds = _origin(len(last), d - 1, parents, src, 0, last)
         origin = np.concatenate([origin, seeds])
-    batch = _make(library, origin, profile, out_level) if len(origin) else batch.take([])
+    batch = (
+        _make(library, origin, profile, out_level, options["general"])
+        if len(origin)
+        else batch.take([])
+    )
     keys = state_keys(batch.bell, batch.weighted, options["symmetry"])
     ok = np.isfinite(batch.raw_pairs)
     keep = merge_identical(keys[ok], labels_of(batch.take(ok), options["extra"]))
@@ -444,21 +492,22 @@ def _expand(library, d, profile, codes, options, out_level, seeds_here, n_jobs):
     return level, gather.evaluations
 
 
-def _recipe(library, d, row, memo) -> Recipe:
+def _recipe(library, d, row, memo, general=()) -> Recipe:
     if d == 0:
         return Recipe(())
     if (d, row) in memo:
         return memo[(d, row)]
     lv = library[d]
-    kept = _recipe(library, int(lv.kept_level[row]), int(lv.kept_row[row]), memo)
-    r = LINEAR_ROUNDS[int(lv.code[row])]
+    kept = _recipe(library, int(lv.kept_level[row]), int(lv.kept_row[row]), memo, general)
+    code = int(lv.code[row])
+    r = LINEAR_ROUNDS[code] if code < N_CODES else general[code - N_CODES]
     s = int(lv.source_level[row])
     if s == SAME:
         step = Round(r.selection, "same", r.rotations, twirl=r.twirl)
     elif s == RAW:
         step = Round(r.selection, "raw", r.rotations, twirl=r.twirl)
     else:
-        source = _recipe(library, s, int(lv.source_row[row]), memo)
+        source = _recipe(library, s, int(lv.source_row[row]), memo, general)
         step = Round(r.selection, "sub", r.rotations, source=source, twirl=r.twirl)
     memo[(d, row)] = Recipe(kept.rounds + (step,))
     return memo[(d, row)]
@@ -493,6 +542,7 @@ def deep_front(
     max_chain: int | None = None,
     on_level=None,
     n_jobs: int | None = 1,
+    general=(),
 ) -> DeepFront:
     """Breadth-first search over made pairs with Pareto pruning (see the module doc).
 
@@ -523,6 +573,13 @@ def deep_front(
     max_chain : int, optional
         Most rounds in a front recipe's main chain (pairs with longer chains
         still serve as sacrificed pairs); ``limits.max_depth`` caps it too.
+    general : sequence of str
+        General check rounds (:mod:`models.circuits`: canonical compact forms,
+        bare or as ``c{form}``, as :mod:`optimise.catalogue` lists them) offered
+        besides the built-in kinds: each as a round on a pair of the previous level
+        with fresh raw pairs or copies of that pair as sacrificed pairs, one
+        rotation for every input or (with raw pairs) for the kept pair alone,
+        with and without re-twirl (:func:`general_rounds`).
     on_level : callable(level, pairs, evaluations, seconds), optional
     n_jobs : int or None
         Workers of the active joblib backend (:func:`joblib.parallel_config`;
@@ -546,6 +603,8 @@ def deep_front(
     depth = max_depth
     caps = [c for c in (max_chain, limits.max_depth) if c is not None]
     max_chain = min(caps) if caps else depth
+    extra = general_rounds(general)
+    widest = max([WIDEST] + [r.n_inputs for r in extra])
     code_set = space_codes(include_double, codes)
     closed = closed_under_rotations(code_set)
     options = {
@@ -558,23 +617,24 @@ def deep_front(
         "layers": layers,
         "width": width,
         "trees": bool(trees),
+        "general": extra,
     }
     grows = profile.bound().lattice(0).grows
-    raw = start_chains(profile, 1, rounds_ahead=depth)
+    raw = start_chains(profile, 1, rounds_ahead=depth, widest=widest)
     none = np.zeros(1, dtype=np.int64)
     library = [_Level(raw, none - 1, none, none, none, none - 1, none, None, {(): 0}, none == 0)]
     prefixes = _seed_prefixes(seeds, depth)
     kept, evaluations = [], []
     for d in range(1, depth + 1):
         t0 = time.monotonic()
-        out_level = (depth - d) * (WIDEST - 1) if grows else 0
+        out_level = (depth - d) * (widest - 1) if grows else 0
         level, n = _expand(library, d, profile, code_set, options, out_level, prefixes[d], n_jobs)
         library.append(level)
         kept.append(len(level.batch))
         evaluations.append(n)
         if on_level is not None:
             on_level(d, kept[-1], n, time.monotonic() - t0)
-    results, equivalents = _front(profile, library, objectives, max_chain)
+    results, equivalents = _front(profile, library, objectives, max_chain, extra)
     return DeepFront(
         results=results,
         equivalents=equivalents,
@@ -583,12 +643,62 @@ def deep_front(
         depth=depth,
         layers=layers,
         width=width,
-        space=describe_deep_space(depth, layers, width),
+        space=describe_deep_space(depth, layers, width, len({r.selection for r in extra})),
         seconds=time.monotonic() - started,
+        general=tuple(dict.fromkeys(r.selection for r in extra)),
     )
 
 
-def _front(profile, library, objectives, max_chain):
+def general_rounds(general) -> tuple:
+    """The rounds the deep layer tries for each general check round named in ``general``.
+
+    For each (in the order given, repeats dropped): sacrificed pairs fresh raw
+    pairs or copies; then each of the six rotations applied to every input, and
+    with raw pairs also to the kept pair alone (a rotation of a raw pair adds
+    gate noise and, on a Werner pair, nothing else); each without and with
+    re-twirl, the twirled round right after its untwirled partner (the deep
+    layer relies on that order): 34 rounds per general round.
+
+    Raises
+    ------
+    ValueError
+        When a name is not a general check round (a built-in kind or bad text).
+    """
+    from models.kinds import BUILT_IN
+
+    if isinstance(general, str):
+        general = (general,)
+    selections = []
+    for i, name in enumerate(general):
+        if not isinstance(name, str):
+            raise ValueError(f"general[{i}] = {name!r} must be a general round's compact form")
+        text = name[2:-1] if name.startswith("c{") and name.endswith("}") else name
+        try:
+            selection = step_kind(text).selection
+        except (ValueError, KeyError) as err:
+            raise ValueError(
+                f"general[{i}] = {name!r} is not a general check round: {err}"
+            ) from None
+        if selection in BUILT_IN:
+            raise ValueError(
+                f"general[{i}] = {name!r} is a built-in kind; give general check rounds only"
+            )
+        if selection not in selections:
+            selections.append(selection)
+    out = []
+    for selection in selections:
+        n = step_kind(selection).n_inputs
+        for sacrificed in ("raw", "same"):
+            rotations = [(r,) * n for r in range(6)]
+            if sacrificed == "raw":
+                rotations += [(r,) + (0,) * (n - 1) for r in range(1, 6)]
+            for rotation in rotations:
+                for twirled in (False, True):
+                    out.append(Round(selection, sacrificed, rotation, twirl=twirled))
+    return tuple(out)
+
+
+def _front(profile, library, objectives, max_chain, general=()):
     """The front over the library pairs, rebuilt, re-evaluated and checked."""
     where = [(d, r) for d, lv in enumerate(library) for r in np.flatnonzero(lv.chain <= max_chain)]
     values = np.concatenate(
@@ -604,7 +714,7 @@ def _front(profile, library, objectives, max_chain):
     for key in sorted(groups):
         found = {}
         for i in groups[key]:
-            recipe = _recipe(library, *where[i], memo)
+            recipe = _recipe(library, *where[i], memo, general)
             result = evaluate(recipe, profile)
             _check_agrees(result, values[i], objectives)
             found.setdefault(result.notation, result)

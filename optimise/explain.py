@@ -85,7 +85,11 @@ class StepStory:
         names = ("X", "Y", "Z")
         gone = [f"{n} {w:.4f}" for n, w in zip(names, self.removed, strict=True) if w > 5e-5]
         grown = [f"{n} {-w:.4f}" for n, w in zip(names, self.removed, strict=True) if w < -5e-5]
-        frame = f" (labels after the kept pair's rotation: {self.relabelled})" if self.relabelled else ""
+        frame = (
+            f" (labels after the kept pair's rotation: {self.relabelled})"
+            if self.relabelled
+            else ""
+        )
         parts.append("removes " + (", ".join(gone) if gone else "no error weight") + frame)
         if grown:
             parts.append("copies in " + ", ".join(grown))

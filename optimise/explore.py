@@ -10,9 +10,9 @@ that every part of the front gets its turn:
 1. extensions: the recipe with one more round, a copy of its last round, then of
    each of its other rounds (a pattern continued: ``sY.sX`` -> ``sY.sX^2``,
    ``sY.sX.sY``, ``sY.sX.pY``);
-2. edits of one round: the other selection (2->1 <-> double selection), another
-   source of the sacrificed pairs, the re-twirl switched, then one input's
-   rotation changed.
+2. edits of one round: another built-in selection (2->1 <-> double selection;
+   a general check round is not swapped for another), another source of the
+   sacrificed pairs, the re-twirl switched, then one input's rotation changed.
 
 Only recipes of the search space (``max_depth`` rounds at most) that no trial of
 the study holds or waits for are queued; what is queued is decided by the front
@@ -69,7 +69,7 @@ def _edits(params: dict) -> list[dict]:
     depth = params["depth"]
     for i in range(depth):
         fields = _round_of(params, i)
-        for selection in SELECTION_CHOICES:
+        for selection in SELECTION_CHOICES:  # the built-in kinds
             if selection != fields["selection"]:
                 rots = [fields.get(f"rot{j}", fields["rot0"]) for j in range(N_INPUTS[selection])]
                 changed = {k: v for k, v in fields.items() if not k.startswith("rot")}
@@ -89,7 +89,7 @@ def _edits(params: dict) -> list[dict]:
     return out
 
 
-def neighbours(notation: str, max_depth: int) -> list[dict]:
+def neighbours(notation: str, max_depth: int, selections=SELECTION_CHOICES) -> list[dict]:
     """Parameter sets one edit away from a recipe, in the order they are tried.
 
     Parameters
@@ -98,6 +98,8 @@ def neighbours(notation: str, max_depth: int) -> list[dict]:
         A recipe in our notation; one outside the search space has no neighbours.
     max_depth : int
         The search space's largest number of rounds.
+    selections : tuple of str
+        The step kinds of the search space (general check rounds included).
 
     Returns
     -------
@@ -112,13 +114,13 @@ def neighbours(notation: str, max_depth: int) -> list[dict]:
     >>> neighbours("sY.sX.sX", 3)[0]["r0.selection"]
     'double'
     """
-    params = recipe_params(parse_recipe(notation), max_depth)
+    params = recipe_params(parse_recipe(notation), max_depth, selections)
     if params is None:
         return []
     return _extensions(params, max_depth) + _edits(params)
 
 
-def _taken_ids(study, max_depth: int) -> set:
+def _taken_ids(study, max_depth: int, selections) -> set:
     """Recipe ids the study holds or has queued."""
     taken = set()
     for trial in study.get_trials(deepcopy=False):
@@ -126,7 +128,7 @@ def _taken_ids(study, max_depth: int) -> set:
         if recipe_id is None and trial.state == TrialState.WAITING:
             try:
                 fixed = trial.system_attrs.get("fixed_params", {})
-                recipe_id = recipe_from_params(fixed, max_depth).recipe_id
+                recipe_id = recipe_from_params(fixed, max_depth, selections).recipe_id
             except (KeyError, ValueError):
                 continue
         taken.add(recipe_id)
@@ -145,10 +147,13 @@ class FrontExplorer:
     max_depth : int
     budget : int
         The study's total trials: nothing is queued that no trial would run.
+    selections : tuple of str
+        The step kinds of the search space.
     """
 
-    def __init__(self, max_depth: int, budget: int):
+    def __init__(self, max_depth: int, budget: int, selections=SELECTION_CHOICES):
         self.max_depth = max_depth
+        self.selections = tuple(selections)
         self.budget = budget
         self.looked_at = None  # the last mark looked at
 
@@ -158,10 +163,12 @@ class FrontExplorer:
         if finished >= self.budget or mark == self.looked_at:
             return 0
         self.looked_at = mark
-        return explore_front(study, front_notations(), self.max_depth, finished)
+        return explore_front(study, front_notations(), self.max_depth, finished, self.selections)
 
 
-def explore_front(study, front_notations, max_depth: int, finished: int) -> int:
+def explore_front(
+    study, front_notations, max_depth: int, finished: int, selections=SELECTION_CHOICES
+) -> int:
     """Queue neighbours of the front when ``finished`` has passed a multiple of EVERY.
 
     Parameters
@@ -172,6 +179,8 @@ def explore_front(study, front_notations, max_depth: int, finished: int) -> int:
     max_depth : int
     finished : int
         Finished trials of the study (the budget count).
+    selections : tuple of str
+        The step kinds of the search space.
 
     Returns
     -------
@@ -181,8 +190,8 @@ def explore_front(study, front_notations, max_depth: int, finished: int) -> int:
     mark = (finished // EVERY) * EVERY
     if mark == 0 or study.user_attrs.get(EXPLORED_ATTR, 0) >= mark:
         return 0
-    taken = _taken_ids(study, max_depth)
-    lists = [neighbours(n, max_depth) for n in front_notations]
+    taken = _taken_ids(study, max_depth, selections)
+    lists = [neighbours(n, max_depth, selections) for n in front_notations]
     queued = 0
     cursor = [0] * len(lists)
     while queued < SHARE and any(c < len(ls) for c, ls in zip(cursor, lists, strict=True)):
@@ -191,13 +200,13 @@ def explore_front(study, front_notations, max_depth: int, finished: int) -> int:
                 params = candidates[cursor[k]]
                 cursor[k] += 1
                 try:
-                    recipe = recipe_from_params(params, max_depth)
+                    recipe = recipe_from_params(params, max_depth, selections)
                 except ValueError:
                     continue
                 if recipe.recipe_id in taken:
                     continue
                 taken.add(recipe.recipe_id)
-                study.enqueue_trial(recipe_params(recipe, max_depth) or params)
+                study.enqueue_trial(recipe_params(recipe, max_depth, selections) or params)
                 queued += 1
                 break
             if queued >= SHARE:

@@ -33,6 +33,9 @@ _LATEX_SPECIAL = {
     "}": r"\}",
     "~": r"\textasciitilde{}",
     "^": r"\textasciicircum{}",
+    # in LaTeX's default OT1 encoding a bare < or > prints as an inverted ! or ?
+    "<": r"\textless{}",
+    ">": r"\textgreater{}",
 }
 
 
@@ -98,7 +101,13 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
     the profile and says what each symbol means; the notes under the table
     carry the provenance and :data:`ASSUMPTIONS`. Needs ``\\usepackage{booktabs}``.
     """
-    from .rows import DEFAULT_TOP, canonical_notes, note_mark
+    from .rows import (
+        CHECK_ROUNDS_HEADING,
+        DEFAULT_TOP,
+        canonical_notes,
+        check_round_notes,
+        note_mark,
+    )
 
     top = DEFAULT_TOP if top is None else top
     rows, baselines, target_table = report_rows(front, top, targets)
@@ -197,6 +206,13 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
     ]
     for k, note in enumerate(notes):
         lines.append(r"  \textsuperscript{" + note_mark(k) + "}" + note + r".\\")
+    checks = check_round_notes(n for row in rows for n in (row.result.notation, *row.also))
+    if checks:
+        lines.append("  " + latex_escape(CHECK_ROUNDS_HEADING) + r"\\")
+    for form, text in checks:
+        lines.append(
+            r"  \texttt{" + latex_escape(f"{{{form}}}") + "}: " + latex_escape(text) + r".\\"
+        )
     reasons = canonical_notes(baselines, front.baselines)
     if reasons:
         lines.append(

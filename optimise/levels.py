@@ -196,8 +196,12 @@ def count_rounds(chains: ChainBatch, profile, codes, dedupe: bool, stop_at=None)
     return total
 
 
-def add_twirled(out: ChainBatch, codes, want_base, want_twirl, single_qubit):
-    """Rows for the wanted untwirled codes and for the twirled partners (see module doc)."""
+def add_twirled(out: ChainBatch, codes, want_base, want_twirl, single_qubit, partner=None):
+    """Rows for the wanted untwirled codes and for the twirled partners (see module doc).
+
+    ``partner``: the twirled partner of each code (default :data:`TWIRL_PARTNER`
+    of the code; codes outside :data:`models.chain.LINEAR_ROUNDS` name theirs).
+    """
     keep = np.flatnonzero(want_base)
     tw = np.flatnonzero(want_twirl)
     twirled = out.take(tw)
@@ -209,7 +213,7 @@ def add_twirled(out: ChainBatch, codes, want_base, want_twirl, single_qubit):
     batch = concat([out.take(keep), twirled])
     return (
         batch,
-        np.concatenate([codes[keep], TWIRL_PARTNER[codes[tw]]]),
+        np.concatenate([codes[keep], TWIRL_PARTNER[codes[tw]] if partner is None else partner[tw]]),
         np.concatenate([keep, tw]),
     )
 

@@ -16,7 +16,7 @@ from .limits import Limits
 from .objectives import objective_values
 from .processes import checkpoint, worker_identity
 from .samplers import ERROR_ATTR, SettledPrefix
-from .space import suggest_recipe
+from .space import SELECTION_CHOICES, suggest_recipe
 
 WORKER_ATTR = "worker"
 REPEAT_ATTR = "repeat_of"
@@ -38,8 +38,18 @@ class Objective:
     two processes that drew it at the same moment.
     """
 
-    def __init__(self, profile, *, max_depth: int, objectives, limits: Limits, shared=False):
+    def __init__(
+        self,
+        profile,
+        *,
+        max_depth: int,
+        objectives,
+        limits: Limits,
+        shared=False,
+        selections=SELECTION_CHOICES,
+    ):
         self.shared = shared
+        self.selections = tuple(selections)
         self.profile = profile
         self.max_depth = max_depth
         self.objectives = tuple(objectives)
@@ -58,7 +68,7 @@ class Objective:
         checkpoint("ask")
         trial.set_user_attr(WORKER_ATTR, self.worker)
         try:
-            recipe = suggest_recipe(trial, self.max_depth)
+            recipe = suggest_recipe(trial, self.max_depth, selections=self.selections)
         except Exception as error:
             trial.set_user_attr(ERROR_ATTR, f"{type(error).__name__}: {error}")
             raise

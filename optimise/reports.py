@@ -374,7 +374,13 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
     targets : sequence of float
         Target fidelities, one row each (the run's own ``--target`` is added).
     """
-    from .rows import DEFAULT_TOP, canonical_notes, note_mark
+    from .rows import (
+        CHECK_ROUNDS_HEADING,
+        DEFAULT_TOP,
+        canonical_notes,
+        check_round_notes,
+        note_mark,
+    )
 
     top = DEFAULT_TOP if top is None else top
     rows, baselines, target_table = report_rows(front, top, targets)
@@ -401,6 +407,10 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
         lines.append("| " + " | ".join([str(i)] + cells) + " |")
     if notes:
         lines += ["", "Other recipes with the same figures: " + "; ".join(notes) + "."]
+    checks = check_round_notes(n for row in rows for n in (row.result.notation, *row.also))
+    if checks:
+        lines += ["", CHECK_ROUNDS_HEADING, ""]
+        lines += [f"- `{{{form}}}`: {text}." for form, text in checks]
     if baselines:
         shown = "" if top <= 0 else ", those no other baseline beats in both fidelity and yield"
         lines += ["", f"Textbook baselines (reference{shown}):", ""]

@@ -37,7 +37,7 @@ from .objective import REPEAT_ATTR, WORKER_ATTR, trial_attrs, trial_constraints
 from .objectives import objective_values
 from .processes import is_running
 from .samplers import ERROR_ATTR
-from .space import distributions_for, recipe_from_params
+from .space import SELECTION_CHOICES, distributions_for, recipe_from_params
 
 REASK_ATTR = "reask_of"
 REGISTERED_PREFIX = "process "  # study user attributes naming the processes that worked on it
@@ -113,8 +113,12 @@ def abandoned_trials(study) -> list:
     ]
 
 
-def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: dict) -> list[int]:
+def reask_abandoned(
+    study, profile, *, max_depth, objectives, limits, worker: dict, selections=SELECTION_CHOICES
+) -> list[int]:
     """Evaluate the abandoned trials' recipes again and add them as finished trials.
+
+    ``selections``: the step kinds of the study's space (:mod:`optimise.space`).
 
     Returns the numbers of the trials asked again.
     """
@@ -127,7 +131,7 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
         params = dict(trial.system_attrs.get("fixed_params", {}))
         params.update(trial.params)
         try:
-            recipe = recipe_from_params(params, max_depth)
+            recipe = recipe_from_params(params, max_depth, selections)
         except (KeyError, ValueError):
             continue  # cut short before its recipe was drawn: the sampler draws it again
         used = _used_params(params, recipe.depth)
@@ -139,7 +143,7 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
                 create_trial(
                     state=TrialState.PRUNED,
                     params=used,
-                    distributions=distributions_for(used, max_depth),
+                    distributions=distributions_for(used, max_depth, selections=selections),
                     user_attrs=attrs,
                 )
             )
@@ -154,7 +158,7 @@ def reask_abandoned(study, profile, *, max_depth, objectives, limits, worker: di
                 state=TrialState.COMPLETE,
                 values=objective_values(result, objectives),
                 params=used,
-                distributions=distributions_for(used, max_depth),
+                distributions=distributions_for(used, max_depth, selections=selections),
                 user_attrs=attrs,
                 system_attrs={
                     k: v for k, v in trial.system_attrs.items() if not k.startswith("constraints")

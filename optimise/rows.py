@@ -315,3 +315,32 @@ def canonical_notes(rows: list[Row], baselines) -> list[tuple[list[tuple[str, st
             if (built, b.result.notation) not in pairs:
                 pairs.append((built, b.result.notation))
     return [(pairs, why) for why, pairs in notes.items()]
+
+
+CHECK_ROUNDS_HEADING = (
+    "General check rounds, written c{...} (sacrificed pairs fresh or made by a source) or "
+    "cs{...} (copies of the pair so far); pairs numbered from 0, pair 0 kept, CNOT c>t:"
+)
+
+
+def check_round_notes(notations) -> list[tuple[str, str]]:
+    """(compact form, what each node does) for every general check round these recipes use.
+
+    In the order of first use; a table that shows ``c{...}`` tokens states each
+    circuit once under it, so that a reader can rebuild the round without
+    stillroom (:func:`models.circuits.describe`; both nodes apply the same gates).
+    """
+    from models.circuits import describe, general_rounds, read_circuit
+    from models.notation import parse_recipe
+
+    out: dict = {}
+    for notation in notations:
+        if "{" not in notation:  # only general rounds have braces
+            continue
+        for _, r in general_rounds(parse_recipe(notation)):
+            if r.selection in out:
+                continue
+            lines = describe(read_circuit(r.selection))
+            both = lines[0].split(": ", 1)[1]
+            out[r.selection] = f"at each node {both}; {lines[-1]}"
+    return list(out.items())

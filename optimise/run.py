@@ -363,7 +363,11 @@ class Run:
         recorded = self.check_resume(settings, profile_dict)
         resumed = recorded is not None
         created = now_iso() if recorded is None else recorded.get("created", now_iso())
-        written = {"created": created, "updated": now_iso(), "stillroom_version": stillroom_version()}
+        written = {
+            "created": created,
+            "updated": now_iso(),
+            "stillroom_version": stillroom_version(),
+        }
         written.update(settings.to_json())
         self.make_folder()
         self.write_json(SETTINGS_FILE, written)

@@ -23,6 +23,8 @@ from pathlib import Path
 import optuna
 from optuna.trial import TrialState
 
+from models.notation import parse_recipe
+
 from .errors import InputError, RunError
 from .explore import FrontExplorer
 from .front import BaselineResult, baseline_results
@@ -34,7 +36,14 @@ from .progress import SearchProgress
 from .resume import fail_stale_trials, reask_abandoned, register_worker, registered_workers
 from .run import Run, load_run, same_values
 from .samplers import SlotSeededSampler, finished_count
-from .seeding import deep_layer, enqueue_known, exhaustive_layer, release_layer_workers
+from .seeding import (
+    check_round_layer,
+    deep_layer,
+    enqueue_known,
+    exhaustive_layer,
+    release_layer_workers,
+    study_selections,
+)
 from .settings import SearchSettings
 from .space import is_linear_space
 from .storage import StorageSpec, open_resolved, resolve_storage
@@ -226,12 +235,21 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
             known = [r.notation for r in exhaustive.results]
             known += [b.result.notation for b in baselines]
             deep = deep_layer(profile, settings, known, on_level=on_level)
+            on_level = _layer_note(
+                bar,
+                "check rounds",
+                "deep layer with check rounds: level {}, {:,d} pairs kept of {:,d} rounds "
+                "evaluated in {:.1f} s",
+            )
+            linear = [r.notation for r in deep.results if parse_recipe(r.notation).is_linear]
+            checked = check_round_layer(profile, settings, known + linear, on_level=on_level)
         finally:
             release_layer_workers()
     me = worker_identity()
     register_worker(study, me)  # before any trial is asked: see optimise.resume
     done_before = finished_count(study)  # trials asked again below are this run's work
     stale = fail_stale_trials(study, me)
+    selections = study_selections(profile, settings)
     asked = reask_abandoned(
         study,
         profile,
@@ -239,6 +257,7 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
         objectives=settings.objectives,
         limits=settings.limits,
         worker=me,
+        selections=selections,
     )
     if stale or asked:
         bar.note(
@@ -253,9 +272,12 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
 
         enqueue_known(
             study,
-            [r.notation for r in deep.results] + known,
+            [r.notation for r in deep.results]
+            + ([r.notation for r in checked.results] if checked is not None else [])
+            + known,
             depth,
             between=between,
+            selections=selections,
         )
     complete = exhaustive.complete_depth >= depth and is_linear_space(depth) and exhaustive.complete
     tracker = FrontTracker(
@@ -268,6 +290,8 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
         complete=complete,
     )
     tracker.add_layer(deep.space, deep.results, deep.equivalents)
+    if checked is not None:
+        tracker.add_layer(checked.space, checked.results, checked.equivalents)
     done_now = finished_count(study)
     tracker.add_trials(study.get_trials(deepcopy=False))
     tracker.write(done_now)
@@ -345,6 +369,7 @@ def _objective(profile, settings: SearchSettings, shared: bool) -> Objective:
         objectives=settings.objectives,
         limits=settings.limits,
         shared=shared,
+        selections=study_selections(profile, settings),
     )
 
 
@@ -362,7 +387,8 @@ def worker_offset(study, me: dict) -> int:
 
 def _explorer(settings, tracker):
     """After each trial: queue neighbours of the front when due (:mod:`optimise.explore`)."""
-    explorer = FrontExplorer(settings.depth_cap, settings.n_trials)
+    selections = study_selections(tracker.profile, settings)
+    explorer = FrontExplorer(settings.depth_cap, settings.n_trials, selections)
 
     def notations():
         return [e["recipe"] for e in tracker.entries()]

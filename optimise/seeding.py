@@ -14,8 +14,8 @@ from models.notation import parse_recipe
 
 from .deep import DeepFront, deep_front
 from .exhaustive import ExhaustiveFront, exhaustive_front
-from .settings import DEEP_LEVELS_LIMIT
-from .space import recipe_params
+from .settings import DEEP_LEVELS_LIMIT, parse_check_rounds
+from .space import SELECTION_CHOICES, recipe_params
 
 # automatic depth: expand a depth only while it needs at most this many rounds
 # evaluated, which keeps the exhaustive layer to seconds (see tests/benchmarks)
@@ -106,15 +106,18 @@ def exhaustive_layer(profile, run, settings, on_depth=None) -> ExhaustiveFront:
     return front
 
 
-def enqueue_known(study, notations, max_depth: int, between=None) -> int:
+def enqueue_known(
+    study, notations, max_depth: int, between=None, selections=SELECTION_CHOICES
+) -> int:
     """Enqueue recipes (skipping those already in the study); returns how many were new.
 
-    ``between``, if given, is called after each recipe enqueued (a place to stop).
+    ``between``, if given, is called after each recipe enqueued (a place to stop);
+    recipes outside the space (``max_depth``, ``selections``) are skipped.
     """
     seen, count = set(), 0
     before = len(study.get_trials(deepcopy=False))
     for notation in notations:
-        params = recipe_params(parse_recipe(notation), max_depth)
+        params = recipe_params(parse_recipe(notation), max_depth, selections)
         if params is None:
             continue
         key = tuple(sorted(params.items()))
@@ -128,6 +131,63 @@ def enqueue_known(study, notations, max_depth: int, between=None) -> int:
     return len(study.get_trials(deepcopy=False)) - before if count else 0
 
 
+def check_round_selections(profile, settings, directory=None) -> tuple[str, ...]:
+    """The general check rounds a search offers its second deep pass and its study.
+
+    From each catalogue of ``settings.check_rounds`` (built for the profile's raw
+    pair, two-qubit gates and measurements, or read from the cache,
+    :func:`optimise.catalogue.load_or_build`), the rounds whose fidelity on raw
+    pairs beats the raw pair's, ``settings.check_rounds_top`` of them spread
+    evenly along the front (success descending), in catalogue order.
+    """
+    from .catalogue import load_or_build
+
+    chosen = []
+    for n, g in parse_check_rounds(settings.check_rounds):
+        catalogue, _ = load_or_build(
+            n,
+            g,
+            pair=profile.raw,
+            two_qubit=profile.noise.two_qubit,
+            measurement=profile.noise.measurement,
+            directory=directory,
+        )
+        useful = [e["form"] for e in catalogue.entries if e["fidelity"] > profile.raw[0]]
+        top = settings.check_rounds_top
+        if len(useful) > top:
+            picks = sorted({round(i * (len(useful) - 1) / max(top - 1, 1)) for i in range(top)})
+            useful = [useful[i] for i in picks]
+        chosen += [f for f in useful if f not in chosen]
+    return tuple(chosen)
+
+
+def study_selections(profile, settings, directory=None) -> tuple[str, ...]:
+    """The step kinds the study samples: the built-in ones, then the check rounds
+    offered (:func:`check_round_selections`), when the search asks for them."""
+    if settings.check_rounds is None:
+        return SELECTION_CHOICES
+    return SELECTION_CHOICES + check_round_selections(profile, settings, directory)
+
+
+def check_round_layer(profile, settings, seeds, on_level=None, directory=None) -> DeepFront:
+    """A second deep pass that may also use general check rounds (``--check-rounds``).
+
+    The same levels, width and layers as :func:`deep_layer`, seeded with the
+    same known recipes and the first pass's linear front; its front joins the
+    search's front beside the first pass's, so offering the new rounds never
+    loses a point the first pass found (its pruning differs: it has more
+    candidates per level). None when the search asks for no check rounds or
+    no deep layer.
+    """
+    levels = deep_levels(settings)
+    if settings.check_rounds is None or levels == 0:
+        return None
+    general = check_round_selections(profile, settings, directory)
+    if not general:
+        return None
+    return deep_layer(profile, settings, seeds, on_level=on_level, general=general)
+
+
 def deep_levels(settings) -> int:
     """Levels of a search's deep layer: ``settings.deep_levels``, or (None) twice the
     depth cap, at most :data:`optimise.settings.DEEP_LEVELS_LIMIT`."""
@@ -136,13 +196,15 @@ def deep_levels(settings) -> int:
     return min(2 * settings.depth_cap, DEEP_LEVELS_LIMIT)
 
 
-def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
+def deep_layer(profile, settings, seeds, on_level=None, general=()) -> DeepFront:
     """The deep layer of a search (:mod:`optimise.deep`), seeded with known recipes.
 
     Levels: :func:`deep_levels` (the default ``--depth 5`` gives 10; 0: no deep
     layer); width and Pareto layers: ``settings.deep_width``, ``deep_layers``.
     Front recipes keep to the depth cap in their main chain, deeper pairs serve as
     sacrificed pairs. Deterministic, so a resumed run computes the same front again.
+    ``general``: general check rounds offered besides the built-in kinds
+    (:func:`check_round_layer`).
     """
     levels = deep_levels(settings)
     if levels == 0:
@@ -158,4 +220,5 @@ def deep_layer(profile, settings, seeds, on_level=None) -> DeepFront:
         seeds=seeds,
         on_level=on_level,
         n_jobs=layer_jobs(settings),
+        general=general,
     )

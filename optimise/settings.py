@@ -52,6 +52,46 @@ DEEP_LEVELS_LIMIT = 12
 # a width of 256 would take some hours on the demo and a few GB of memory (width 64
 # took 17 min and 0.4 GB on a shared 2-core machine; both grow about as the width squared)
 DEEP_WIDTH_LIMIT = 256
+# general check rounds (optimise.catalogue): pairs per round and CNOTs per circuit;
+# five CNOTs on five pairs enumerate 5e7 circuits (about 20 s, then cached)
+CHECK_ROUND_PAIRS = (2, 5)
+CHECK_ROUND_CNOTS = (1, 5)
+CHECK_ROUNDS_TOP = 24
+CHECK_ROUNDS_TOP_LIMIT = 512
+
+
+def parse_check_rounds(spec) -> tuple[tuple[int, int], ...]:
+    """``"3:3,4:4"`` -> ((3, 3), (4, 4)): catalogues of n-pair rounds of up to g CNOTs.
+
+    Raises
+    ------
+    InputError
+        Naming the item, the allowed pairs and CNOTs.
+    """
+    if spec is None:
+        return ()
+    if not isinstance(spec, str) or not spec.strip():
+        raise InputError(
+            f"check_rounds = {spec!r} must be catalogues as PAIRS:CNOTS[,PAIRS:CNOTS...], "
+            "such as '3:3,4:4'"
+        )
+    out = []
+    for item in spec.split(","):
+        parts = item.strip().split(":")
+        try:
+            n, g = (int(x) for x in parts)
+        except ValueError:
+            raise InputError(
+                f"check_rounds = {spec!r}: {item.strip()!r} must be PAIRS:CNOTS, such as '4:4'"
+            ) from None
+        (n_low, n_high), (g_low, g_high) = CHECK_ROUND_PAIRS, CHECK_ROUND_CNOTS
+        if not n_low <= n <= n_high:
+            raise InputError(f"check_rounds = {spec!r}: pairs {n} is outside [{n_low}, {n_high}]")
+        if not g_low <= g <= g_high:
+            raise InputError(f"check_rounds = {spec!r}: CNOTs {g} is outside [{g_low}, {g_high}]")
+        if (n, g) not in out:
+            out.append((n, g))
+    return tuple(out)
 
 
 def sampler_settings(name: str, seed: int) -> dict:
@@ -127,6 +167,12 @@ class SearchSettings:
     deep_levels : int in [0, 12] or None
         Levels of the deep layer (None: twice the depth cap, at most 12; 0: no
         deep layer).
+    check_rounds : str or None
+        Catalogues of general check rounds (:mod:`optimise.catalogue`) a second
+        deep pass may use, as ``PAIRS:CNOTS[,PAIRS:CNOTS...]`` (pairs 2 to 5, CNOTs
+        1 to 5); None: none.
+    check_rounds_top : int in [1, 512]
+        Rounds taken from each catalogue, spread evenly along its front.
     seed : int in [0, 2**32 - 1]
     sampler : one of :data:`SAMPLERS`
     storage : str or None
@@ -154,6 +200,8 @@ class SearchSettings:
     deep_width: int = _role("run", "--deep-width", added=True, default=DEEP_WIDTH)
     deep_layers: int = _role("run", "--deep-layers", added=True, default=DEEP_LAYERS)
     deep_levels: int | None = _role("run", "--deep-levels", added=True, default=None)
+    check_rounds: str | None = _role("run", "--check-rounds", added=True, default=None)
+    check_rounds_top: int = _role("run", "--check-rounds-top", added=True, default=CHECK_ROUNDS_TOP)
     seed: int = _role("study", "--seed", default=0)
     sampler: str = _role("study", "--sampler", default="nsga2")
     storage: str | None = _role("run", "--storage", default=None)
@@ -204,6 +252,17 @@ class SearchSettings:
                 DEEP_LEVELS_LIMIT,
                 "the levels of the deep layer (None: automatic; 0: no deep layer)",
             )
+        if self.check_rounds is not None:
+            spec = self.check_rounds
+            canonical = ",".join(f"{n}:{g}" for n, g in parse_check_rounds(spec))
+            object.__setattr__(self, "check_rounds", canonical)
+        _check_int(
+            "check_rounds_top",
+            self.check_rounds_top,
+            1,
+            CHECK_ROUNDS_TOP_LIMIT,
+            "the rounds taken from each catalogue of check rounds",
+        )
         t = self.timeout_s
         if t is not None and (
             isinstance(t, bool) or not isinstance(t, Real) or math.isnan(t) or not t > 0
@@ -258,7 +317,7 @@ class SearchSettings:
         """One sentence naming the recipes the optuna layer samples."""
         from .space import describe_space
 
-        return describe_space(self.depth_cap)
+        return describe_space(self.depth_cap, self.check_rounds)
 
     @property
     def sampler_settings(self) -> dict:

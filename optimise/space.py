@@ -10,6 +10,10 @@ Parameters (all categorical but the depth, and conditional on it, which suits TP
   source); the first round always sacrifices raw pairs; ``r{i}.rot0``,
   ``r{i}.rot1`` and, for double selection, ``r{i}.rot2`` (a rotation name per
   input, kept input first); ``r{i}.twirl`` (re-twirl the output to Werner form).
+
+A search with general check rounds (``--check-rounds``) adds their canonical
+forms to the choices of ``r{i}.selection`` (``selections``, fixed for the run
+folder); a general round of n pairs has ``r{i}.rot0`` to ``r{i}.rot{n-1}``.
 """
 
 from __future__ import annotations
@@ -30,15 +34,19 @@ def sacrificed_choices(i: int, nested: bool = True) -> tuple[str, ...]:
     return ("raw", "same") + (tuple(f"prefix{k}" for k in range(1, i)) if nested else ())
 
 
-def describe_space(max_depth: int) -> str:
-    """One sentence naming the recipes the optuna layer samples."""
+def describe_space(max_depth: int, check_rounds: str | None = None) -> str:
+    """One sentence naming the recipes the optuna layer samples (``check_rounds``: the
+    catalogues of general check rounds it may choose from besides the built-in kinds)."""
     nested = (
         ", or pairs made by the first rounds of the same recipe (nested pumping)"
         if max_depth >= 3
         else ""
     )
     return (
-        f"recipes of 1 to {max_depth} rounds, each round a 2->1 step or double selection "
+        f"recipes of 1 to {max_depth} rounds, each round a 2->1 step"
+        + (", double selection" if check_rounds else " or double selection")
+        + (f" or a general check round of the catalogues {check_rounds}" if check_rounds else "")
+        + " "
         "with any bilateral rotation on each input and an optional re-twirl, whose sacrificed "
         f"pairs are fresh raw pairs, copies of the pair made so far{nested}"
     )
@@ -49,7 +57,7 @@ def is_linear_space(max_depth: int) -> bool:
     return max_depth <= 2
 
 
-def recipe_from_params(params: dict, max_depth: int) -> Recipe:
+def recipe_from_params(params: dict, max_depth: int, selections=SELECTION_CHOICES) -> Recipe:
     """Build the recipe a complete parameter set describes.
 
     Raises
@@ -65,6 +73,8 @@ def recipe_from_params(params: dict, max_depth: int) -> Recipe:
     rounds: list[Round] = []
     for i in range(depth):
         selection = params[f"r{i}.selection"]
+        if selection not in selections:
+            raise ValueError(f"r{i}.selection = {selection!r} is not one of this space's")
         kind = "raw" if i == 0 else params[f"r{i}.sacrificed"]
         rotations = tuple(
             ROTATION_NAMES.index(params[f"r{i}.rot{j}"]) for j in range(N_INPUTS[selection])
@@ -84,11 +94,13 @@ def recipe_from_params(params: dict, max_depth: int) -> Recipe:
     return Recipe(tuple(rounds))
 
 
-def suggest_recipe(trial, max_depth: int, nested: bool = True) -> Recipe:
+def suggest_recipe(
+    trial, max_depth: int, nested: bool = True, selections=SELECTION_CHOICES
+) -> Recipe:
     """Ask an optuna trial for a recipe of this space (linear only with ``nested=False``)."""
     params = {"depth": trial.suggest_int("depth", 1, max_depth)}
     for i in range(params["depth"]):
-        selection = trial.suggest_categorical(f"r{i}.selection", SELECTION_CHOICES)
+        selection = trial.suggest_categorical(f"r{i}.selection", tuple(selections))
         params[f"r{i}.selection"] = selection
         if i >= 1:
             params[f"r{i}.sacrificed"] = trial.suggest_categorical(
@@ -97,20 +109,23 @@ def suggest_recipe(trial, max_depth: int, nested: bool = True) -> Recipe:
         for j in range(N_INPUTS[selection]):
             params[f"r{i}.rot{j}"] = trial.suggest_categorical(f"r{i}.rot{j}", ROTATION_NAMES)
         params[f"r{i}.twirl"] = trial.suggest_categorical(f"r{i}.twirl", TWIRL_CHOICES)
-    return recipe_from_params(params, max_depth)
+    return recipe_from_params(params, max_depth, selections)
 
 
-def recipe_params(recipe: Recipe, max_depth: int) -> dict | None:
+def recipe_params(recipe: Recipe, max_depth: int, selections=SELECTION_CHOICES) -> dict | None:
     """The parameters that make ``recipe`` in this space, or ``None`` if it is not in it.
 
-    A round whose source is not a prefix of the recipe's own main chain, a recipe
-    deeper than ``max_depth``, or one that twirls its raw pairs (the space has no
-    parameter for that) is outside the space.
+    A round whose source is not a prefix of the recipe's own main chain, a general
+    check round not in ``selections``, a recipe deeper than ``max_depth``, or
+    one that twirls its raw pairs (the space has no parameter for that) is outside
+    the space.
     """
     if not 1 <= recipe.depth <= max_depth or _twirls_raw_pairs(recipe):
         return None
     params: dict = {"depth": recipe.depth}
     for i, r in enumerate(recipe.rounds):
+        if r.selection not in selections:
+            return None  # a general check round this study was not offered
         params[f"r{i}.selection"] = r.selection
         if i >= 1:
             if r.sacrificed == "sub":
@@ -143,7 +158,9 @@ def _twirls_raw_pairs(recipe: Recipe) -> bool:
     )
 
 
-def distributions_for(params: dict, max_depth: int, nested: bool = True) -> dict:
+def distributions_for(
+    params: dict, max_depth: int, nested: bool = True, selections=SELECTION_CHOICES
+) -> dict:
     """The optuna distribution of each parameter in ``params`` (as :func:`suggest_recipe` asks)."""
     from optuna.distributions import CategoricalDistribution, IntDistribution
 
@@ -155,7 +172,7 @@ def distributions_for(params: dict, max_depth: int, nested: bool = True) -> dict
         i = int(name[1 : name.index(".")])
         field = name[name.index(".") + 1 :]
         if field == "selection":
-            out[name] = CategoricalDistribution(SELECTION_CHOICES)
+            out[name] = CategoricalDistribution(tuple(selections))
         elif field == "sacrificed":
             out[name] = CategoricalDistribution(sacrificed_choices(i, nested))
         elif field.startswith("rot"):

@@ -23,7 +23,6 @@ from .pareto import quantise
 from .rows import representative_order
 from .run import now_iso, stillroom_version
 from .samplers import counts_towards_budget
-from .space import describe_space
 
 
 def _dominates(a, b, maximise) -> bool:
@@ -96,7 +95,7 @@ class FrontTracker:
             where = f"{exhaustive.space} (searched exhaustively: front complete there)"
         else:
             where = "no exhaustive layer"
-        self.space_sentence = f"{where}; and {describe_space(max_depth)}, sampled by optuna" + (
+        self.space_sentence = f"{where}; and {settings.space}, sampled by optuna" + (
             "" if complete else " (not proven complete)"
         )
         # the raw pair is a recipe too, so nothing worse than doing nothing is listed

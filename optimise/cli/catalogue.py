@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+from ..settings import CHECK_ROUND_CNOTS, CHECK_ROUND_PAIRS
 from . import common
 
 NAME = "catalogue"
-MAX_PAIRS = 5
-MAX_CNOTS = 5
+MAX_PAIRS = CHECK_ROUND_PAIRS[1]
+MAX_CNOTS = CHECK_ROUND_CNOTS[1]
 
 
 def add_parser(sub, parents) -> None:

@@ -9,6 +9,10 @@ from pathlib import Path
 from ..objectives import DEFAULT as DEFAULT_OBJECTIVES
 from ..objectives import OBJECTIVES
 from ..settings import (
+    CHECK_ROUND_CNOTS,
+    CHECK_ROUND_PAIRS,
+    CHECK_ROUNDS_TOP,
+    CHECK_ROUNDS_TOP_LIMIT,
     DEEP_LAYERS,
     DEEP_LEVELS_LIMIT,
     DEEP_WIDTH,
@@ -141,6 +145,32 @@ def add_parser(sub, parents) -> None:
             metavar=metavar,
             help=text + (" (default: %(default)s)" if default is not None else ""),
         )
+    checks = p.add_argument_group(
+        "check rounds",
+        common.wrap(
+            "General check rounds over 2 to 5 pairs, found by exact enumeration of small "
+            "bilateral-CNOT circuits (see `stillroom catalogue`), can join the recipes: a second "
+            "deep pass, with the same settings, also tries the rounds of the catalogues named "
+            "here on every made pair, with raw pairs or copies as sacrificed pairs and one "
+            "rotation for every input (or the kept pair). Catalogues are built once per profile "
+            "and cached. The study "
+            "samples the built-in rounds only. A resumed run must repeat these values."
+        ),
+    )
+    checks.add_argument(
+        "--check-rounds",
+        metavar="N:G[,N:G]",
+        help="catalogues of N-pair rounds of up to G CNOTs, such as 3:3,4:4 "
+        f"(N {CHECK_ROUND_PAIRS[0]} to {CHECK_ROUND_PAIRS[1]}, G {CHECK_ROUND_CNOTS[0]} to "
+        f"{CHECK_ROUND_CNOTS[1]}; default: none)",
+    )
+    checks.add_argument(
+        "--check-rounds-top",
+        type=common.whole_number_at_least(1, CHECK_ROUNDS_TOP_LIMIT),
+        default=CHECK_ROUNDS_TOP,
+        metavar="K",
+        help="rounds taken from each catalogue, spread along its front (default: %(default)s)",
+    )
     p.add_argument(
         "--storage",
         metavar="URL",
@@ -217,6 +247,8 @@ def settings_from(args):
             deep_width=args.deep_width,
             deep_layers=args.deep_layers,
             deep_levels=args.deep_levels,
+            check_rounds=args.check_rounds,
+            check_rounds_top=args.check_rounds_top,
             seed=args.seed,
             sampler=args.sampler,
             storage=args.storage,
@@ -352,6 +384,8 @@ def start_message(run_dir, settings) -> str:
         if levels
         else "no deep layer"
     )
+    if levels and settings.check_rounds:
+        deep += f", again with the check rounds of {settings.check_rounds}"
     return (
         f"new search: recipes of 1 to {settings.max_depth} rounds ({layer}, {deep}, then "
         f"sampled by {settings.sampler}); objectives {', '.join(settings.objectives)}; {limits}; "

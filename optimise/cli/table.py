@@ -157,6 +157,14 @@ def print_tables(out, front, *, top: int, targets) -> None:
             [(str(i), row) for i, row in enumerate(rows, 1)],
         )
     )
+    from ..rows import CHECK_ROUNDS_HEADING, check_round_notes
+
+    checks = check_round_notes(n for row in rows for n in (row.result.notation, *row.also))
+    if checks:
+        out.print()
+        out.print(CHECK_ROUNDS_HEADING)
+        for form, text in checks:
+            out.print(f"  {{{form}}}: {text}", markup=False, highlight=False)
     if baselines:
         out.print()
         entries = [

@@ -123,9 +123,7 @@ def summary(checked) -> list[str]:
         biggest = max(abs(r["difference"]) for r in checked.rows())
         lines.append(f"model against re-simulation: largest difference {biggest:.1e}")
     elif worst is not None:
-        lines.append(
-            f"model against re-simulation: largest difference {worst:.1f} standard errors"
-        )
+        lines.append(f"model against re-simulation: largest difference {worst:.1f} standard errors")
     t = checked.twirled
     lines.append(
         "mean output state (Phi+ Psi+ Psi- Phi-): "

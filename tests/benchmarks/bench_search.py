@@ -36,6 +36,18 @@ Run from anywhere (pytest ignores this folder)::
    every side. ``--layers-only`` runs (b) and (c) without the optuna study (the
    exhaustive and deep layers only), for a quick look.
 
+4. Check rounds (``--check-rounds 3:3,4:4``): for the same profiles, the size
+   of each catalogue of general check rounds (:mod:`optimise.catalogue`) before
+   and after the symmetry reductions, the rounds on its front and the time to
+   build it (a fresh cache); then for each target F*, the cheapest recipe with
+   today's round types (the best of the textbook baselines and the default
+   search) against the cheapest with the new ones (the default search with
+   ``--check-rounds``, whose front also holds the first deep pass's), and the
+   saving ("today" also holds the recipes without general rounds that the
+   second search found: a saving counts only what the new rounds bring). Then
+   the one general round on raw pairs that does best against today's cheapest
+   recipe of the same fidelity, to show what a round brings on its own.
+
 Speed is never asserted in a test.
 """
 
@@ -258,8 +270,10 @@ def best_baselines(profile, max_depth=12):
     return out
 
 
-def layered_search(profile, factor: float, layers_only: bool, folder):
-    """The default search (factor 1) or a longer one; returns (results, seconds)."""
+def layered_search(profile, factor: float, layers_only: bool, folder, **changes):
+    """The default search (factor 1) or a longer one; returns (results, seconds).
+
+    ``changes``: other settings (such as ``check_rounds``)."""
     from optimise.search import run_search
     from optimise.settings import SearchSettings
 
@@ -271,7 +285,7 @@ def layered_search(profile, factor: float, layers_only: bool, folder):
     outcome = run_search(
         profile,
         run_dir=folder,
-        settings=defaults.replace(n_trials=trials, deep_width=width),
+        settings=defaults.replace(n_trials=trials, deep_width=width, **changes),
         progress=False,
     )
     results = list(outcome.front) + [evaluate("raw", profile)]
@@ -351,6 +365,100 @@ def targets(names, long_factor, layers_only, coverage_depth, coverage_width, ski
             )
 
 
+def _single_round_rivals(profile, general, front):
+    """The general rounds on raw pairs set against ``front`` at their own fidelity.
+
+    For every round of :func:`optimise.deep.general_rounds` that sacrifices raw
+    pairs, as a one-round recipe: its raw pairs per output against those of the
+    cheapest recipe of ``front`` reaching its fidelity. Returns the round that
+    does best, as (ratio, notation, fidelity, its raw pairs, front's cheapest), or
+    None; and the highest fidelity one general round reaches on raw pairs.
+    """
+    from models.recipes import Recipe
+    from optimise.deep import general_rounds
+
+    best, top = None, 0.0
+    for r in general_rounds(general):
+        if r.sacrificed != "raw" or r.twirl:
+            continue
+        mine = evaluate(Recipe((r,)), profile)
+        top = max(top, mine.fidelity)
+        rival = cheapest(front, mine.fidelity)
+        if rival is None:
+            continue
+        ratio = mine.raw_pairs_per_output / rival[1]
+        if best is None or ratio < best[0]:
+            best = (ratio, mine.notation, mine.fidelity, mine.raw_pairs_per_output, rival)
+    return best, top
+
+
+def check_rounds(names, spec, layers_only) -> None:
+    """Section 4: catalogue sizes, and the saving the general check rounds bring."""
+    import tempfile
+
+    from optimise.catalogue import build_catalogue
+    from optimise.seeding import check_round_selections
+    from optimise.settings import SearchSettings, parse_check_rounds
+
+    print(f"\n== check rounds {spec}: catalogues, and the cheapest recipe per target ==")
+    print(
+        "today: the best of the textbook baselines, the default search, and the recipes "
+        "without general rounds that the search with them found; new: any recipe found"
+    )
+    for name, profile in target_profiles().items():
+        if names and name not in names:
+            continue
+        print(f"\n-- {name}")
+        noise = profile.noise
+        for n, g in parse_check_rounds(spec):
+            cat = build_catalogue(
+                n, g, pair=profile.raw, two_qubit=noise.two_qubit, measurement=noise.measurement
+            )
+            print(
+                f"catalogue {n} pairs, up to {g} CNOTs: {cat.before:,d} circuits enumerated, "
+                f"{cat.after:,d} after symmetry reduction, {len(cat.entries)} on the front, "
+                f"built in {cat.build_seconds:.1f} s"
+            )
+        with tempfile.TemporaryDirectory() as tmp:
+            os.environ["XDG_CACHE_HOME"] = str(Path(tmp) / "cache")
+            general = check_round_selections(
+                profile, SearchSettings(check_rounds=spec), directory=None
+            )
+            base = best_baselines(profile)
+            load = os.getloadavg()[0]
+            default, default_s = layered_search(profile, 1.0, layers_only, Path(tmp) / "today")
+            new, new_s = layered_search(
+                profile, 1.0, layers_only, Path(tmp) / "new", check_rounds=spec
+            )
+            load = max(load, os.getloadavg()[0])
+        today = base + default + [r for r in new if "{" not in r.notation]
+        print(
+            f"search without check rounds {default_s:.1f} s, with {new_s:.1f} s "
+            f"({len(general)} general rounds offered; load average up to {load:.2f} on 2 cores)"
+        )
+        print(f"{'F*':>6}  {'today':>44}  {'with check rounds':>52}  saving")
+        for t in TARGETS:
+            a, b = cheapest(today, t), cheapest(today + new, t)
+            saving = "" if a is None or b is None else f"{100 * (1 - b[1] / a[1]):5.1f} %"
+
+            def cell(x, width):
+                if x is None:
+                    return f"{'-':>{width}}"
+                text = x[0] if len(x[0]) <= width - 10 else x[0][: width - 13] + "..."
+                return f"{text + f' {x[1]:.4g}':>{width}}"
+
+            print(f"{t:>6}  {cell(a, 44)}  {cell(b, 52)}  {saving:>7}")
+        best, top = _single_round_rivals(profile, general, today)
+        if best is not None:
+            ratio, notation, fidelity, cost, rival = best
+            print(
+                f"one general round on raw pairs reaches at most F {top:.4f}; best against "
+                f"today's cheapest recipe of the same fidelity: {notation} F {fidelity:.4f} at "
+                f"{cost:.4g} raw pairs per output, today {rival[0]} {rival[1]:.4g} "
+                f"({100 * (ratio - 1):+.1f} %)"
+            )
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--depth", type=int, default=6)
@@ -372,7 +480,14 @@ def main(argv=None) -> int:
     parser.add_argument("--layers-only", action="store_true")
     parser.add_argument("--coverage-depth", type=int, default=4)
     parser.add_argument("--coverage-width", type=int, default=64)
+    parser.add_argument(
+        "--check-rounds", default="", metavar="N:G[,N:G]", help="run section 4 only"
+    )
     args = parser.parse_args(argv)
+    if args.check_rounds:
+        names = [n for n in args.profiles.split(",") if n]
+        check_rounds(names, args.check_rounds, args.layers_only)
+        return 0
     if args.targets:
         names = [n for n in args.profiles.split(",") if n]
         targets(
