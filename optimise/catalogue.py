@@ -375,7 +375,8 @@ def _cache_key(n, max_cnots, pair, two_qubit, measurement, kept_pair=None) -> st
 
 
 def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, kept_pair=None, directory=None):
-    """The cached catalogue for these settings, built and cached on first use.
+    """The cached catalogue for these settings, built and cached on first use
+    (where the cache folder cannot be written, built each time).
 
     Returns
     -------
@@ -386,14 +387,13 @@ def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, kept_pair=None,
     folder = catalogue_directory(directory)
     key = _cache_key(n, max_cnots, pair, two_qubit, measurement, kept_pair)
     path = folder / f"rounds-n{n}-g{max_cnots}-{key}.json"
-    if path.exists():
-        try:
-            data = json.loads(path.read_text())
-            if data.get("format") == FORMAT:
-                fields = {k: data[k] for k in ("before", "after", "build_seconds", "entries")}
-                return Catalogue(n, max_cnots, **fields), True
-        except (ValueError, KeyError, TypeError, AttributeError):
-            pass  # a damaged cache file is a cache miss: built again and replaced below
+    try:
+        data = json.loads(path.read_text())
+        if data.get("format") == FORMAT:
+            fields = {k: data[k] for k in ("before", "after", "build_seconds", "entries")}
+            return Catalogue(n, max_cnots, **fields), True
+    except (OSError, ValueError, KeyError, TypeError, AttributeError):
+        pass  # a missing, unreadable or damaged cache file is a miss: built (and replaced) below
     catalogue = build_catalogue(
         n,
         max_cnots,
@@ -404,5 +404,8 @@ def load_or_build(n, max_cnots, *, pair, two_qubit, measurement, kept_pair=None,
     )
     # a private temporary file per writer, then a rename: two processes building the
     # same catalogue never see half of one
-    write_json_atomic(path, catalogue.to_json())
+    try:
+        write_json_atomic(path, catalogue.to_json())
+    except OSError:
+        pass  # a cache that cannot be written is only a cache: the catalogue is built
     return catalogue, False

@@ -579,7 +579,7 @@ def deep_front(
         besides the built-in kinds: each as a round on a pair of the previous level
         with fresh raw pairs or copies of that pair as sacrificed pairs, one
         rotation for every input or (with raw pairs) for the kept pair alone,
-        with and without re-twirl (:func:`general_rounds`).
+        with and without re-twirl (:func:`general_round_variants`).
     on_level : callable(level, pairs, evaluations, seconds), optional
     n_jobs : int or None
         Workers of the active joblib backend (:func:`joblib.parallel_config`;
@@ -603,7 +603,7 @@ def deep_front(
     depth = max_depth
     caps = [c for c in (max_chain, limits.max_depth) if c is not None]
     max_chain = min(caps) if caps else depth
-    extra = general_rounds(general)
+    extra = general_round_variants(general)
     widest = max([WIDEST] + [r.n_inputs for r in extra])
     code_set = space_codes(include_double, codes)
     closed = closed_under_rotations(code_set)
@@ -649,7 +649,7 @@ def deep_front(
     )
 
 
-def general_rounds(general) -> tuple:
+def general_round_variants(general) -> tuple:
     """The rounds the deep layer tries for each general check round named in ``general``.
 
     For each (in the order given, repeats dropped): sacrificed pairs fresh raw

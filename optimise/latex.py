@@ -107,6 +107,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
         canonical_notes,
         check_round_notes,
         note_mark,
+        shown_notations,
     )
 
     top = DEFAULT_TOP if top is None else top
@@ -206,7 +207,7 @@ def table_tex(front, *, top: int | None = None, targets=()) -> str:
     ]
     for k, note in enumerate(notes):
         lines.append(r"  \textsuperscript{" + note_mark(k) + "}" + note + r".\\")
-    checks = check_round_notes(n for row in rows for n in (row.result.notation, *row.also))
+    checks = check_round_notes(shown_notations(rows, target_table))
     if checks:
         lines.append("  " + latex_escape(CHECK_ROUNDS_HEADING) + r"\\")
     for form, text in checks:

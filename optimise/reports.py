@@ -380,6 +380,7 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
         canonical_notes,
         check_round_notes,
         note_mark,
+        shown_notations,
     )
 
     top = DEFAULT_TOP if top is None else top
@@ -407,7 +408,7 @@ def table_md(front, *, top: int | None = None, targets=()) -> str:
         lines.append("| " + " | ".join([str(i)] + cells) + " |")
     if notes:
         lines += ["", "Other recipes with the same figures: " + "; ".join(notes) + "."]
-    checks = check_round_notes(n for row in rows for n in (row.result.notation, *row.also))
+    checks = check_round_notes(shown_notations(rows, target_table))
     if checks:
         lines += ["", CHECK_ROUNDS_HEADING, ""]
         lines += [f"- `{{{form}}}`: {text}." for form, text in checks]

@@ -323,6 +323,12 @@ CHECK_ROUNDS_HEADING = (
 )
 
 
+def shown_notations(rows, target_table=()) -> list[str]:
+    """Every recipe a table shows: its rows, the recipes merged into them, its target rows."""
+    out = [n for row in rows for n in (row.result.notation, *row.also)]
+    return out + [t.recipe.notation for t in target_table if t.recipe is not None]
+
+
 def check_round_notes(notations) -> list[tuple[str, str]]:
     """(compact form, what each node does) for every general check round these recipes use.
 

@@ -45,7 +45,7 @@ from .seeding import (
     study_selections,
 )
 from .settings import SearchSettings
-from .space import is_linear_space
+from .space import SELECTION_CHOICES, is_linear_space
 from .storage import StorageSpec, open_resolved, resolve_storage
 from .targets import TargetAnswer, cheapest_reaching
 from .tracker import FrontTracker
@@ -230,6 +230,7 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
 
     with stop.interruptible():  # pure computation: a Ctrl-C ends it at once
         try:
+            selections = _study_selections(study, profile, settings)
             exhaustive = exhaustive_layer(profile, run, settings, on_depth=on_depth)
             baselines = baseline_results(profile, settings.max_depth)
             known = [r.notation for r in exhaustive.results]
@@ -242,14 +243,16 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
                 "evaluated in {:.1f} s",
             )
             linear = [r.notation for r in deep.results if parse_recipe(r.notation).is_linear]
-            checked = check_round_layer(profile, settings, known + linear, on_level=on_level)
+            general = selections[len(SELECTION_CHOICES) :]
+            checked = check_round_layer(
+                profile, settings, known + linear, general, on_level=on_level
+            )
         finally:
             release_layer_workers()
     me = worker_identity()
     register_worker(study, me)  # before any trial is asked: see optimise.resume
     done_before = finished_count(study)  # trials asked again below are this run's work
     stale = fail_stale_trials(study, me)
-    selections = study_selections(profile, settings)
     asked = reask_abandoned(
         study,
         profile,
@@ -306,9 +309,13 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
             try:
                 if settings.workers == 1:
                     shared = others_may_write(spec, run, settings.workers)
-                    _optimize_here(study, profile, settings, shared, left, tracker, bar, stop)
+                    _optimize_here(
+                        study, profile, settings, shared, left, tracker, bar, stop, selections
+                    )
                 else:
-                    _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop)
+                    _optimize_workers(
+                        spec, run, settings, profile, left, tracker, bar, stop, selections
+                    )
             finally:
                 tracker.add_trials(study.get_trials(deepcopy=False))
                 tracker.write(finished_count(study))
@@ -362,14 +369,34 @@ class _Between:
             study.stop()
 
 
-def _objective(profile, settings: SearchSettings, shared: bool) -> Objective:
+SELECTIONS_ATTR = "selections"
+
+
+def _study_selections(study, profile, settings) -> tuple[str, ...]:
+    """The step kinds the study samples, fixed when the study is first opened.
+
+    The built-in kinds, and with ``--check-rounds`` the rounds offered
+    (:func:`optimise.seeding.study_selections`), stored on the study: a resumed
+    run and every worker read the same choices back, whatever the catalogue
+    cache holds by then.
+    """
+    if settings.check_rounds is None:
+        return SELECTION_CHOICES
+    stored = study.user_attrs.get(SELECTIONS_ATTR)
+    if stored is None:
+        stored = list(study_selections(profile, settings))
+        study.set_user_attr(SELECTIONS_ATTR, stored)
+    return tuple(stored)
+
+
+def _objective(profile, settings: SearchSettings, shared: bool, selections) -> Objective:
     return Objective(
         profile,
         max_depth=settings.depth_cap,
         objectives=settings.objectives,
         limits=settings.limits,
         shared=shared,
-        selections=study_selections(profile, settings),
+        selections=selections,
     )
 
 
@@ -385,9 +412,8 @@ def worker_offset(study, me: dict) -> int:
     return sum(1 for w in others if w.get("host") != here or is_running(w))
 
 
-def _explorer(settings, tracker):
+def _explorer(settings, tracker, selections):
     """After each trial: queue neighbours of the front when due (:mod:`optimise.explore`)."""
-    selections = study_selections(tracker.profile, settings)
     explorer = FrontExplorer(settings.depth_cap, settings.n_trials, selections)
 
     def notations():
@@ -410,11 +436,11 @@ def others_may_write(spec: StorageSpec, run: Run, workers: int) -> bool:
     return Path(spec.target).parent != run.folder.resolve()
 
 
-def _optimize_here(study, profile, settings, shared, left, tracker, bar, stop):
+def _optimize_here(study, profile, settings, shared, left, tracker, bar, stop, selections):
     if shared:
         offset = worker_offset(study, worker_identity())
         study.sampler = SlotSeededSampler(settings.sampler_settings, worker=offset)
-    explore = _explorer(settings, tracker)
+    explore = _explorer(settings, tracker, selections)
     explore(study)
 
     def after(study, trial):
@@ -424,7 +450,7 @@ def _optimize_here(study, profile, settings, shared, left, tracker, bar, stop):
         bar.update(bar.done + 1, tracker.best_fidelity(), tracker.size())
 
     study.optimize(
-        _objective(profile, settings, shared),
+        _objective(profile, settings, shared, selections),
         n_trials=max(0, settings.n_trials - budget_used(study)),
         timeout=left,
         callbacks=[_Between(settings.n_trials, shared, lambda: stop.requested, after)],
@@ -469,7 +495,7 @@ def worker_main(job: WorkerJob, stop_event=None) -> int:
     if asked_to_stop() or budget_used(study) >= settings.n_trials:
         return 0
     study.optimize(
-        _objective(profile, settings, True),
+        _objective(profile, settings, True, _study_selections(study, profile, settings)),
         n_trials=None,
         timeout=job.timeout_s,
         callbacks=[_Between(settings.n_trials, True, asked_to_stop)],
@@ -488,7 +514,7 @@ def _worker_entry(job, stop_event):
         sys.exit(1)
 
 
-def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
+def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop, selections):
     context = multiprocessing.get_context("spawn")
     stop_event = context.Event()
     monitor = _open_study(open_resolved(spec), spec, run, settings, profile)
@@ -502,7 +528,7 @@ def _optimize_workers(spec, run, settings, profile, left, tracker, bar, stop):
     ]
     for p in processes:
         p.start()
-    explore = _explorer(settings, tracker)
+    explore = _explorer(settings, tracker, selections)
     try:
         while any(p.is_alive() for p in processes):
             if stop.requested:

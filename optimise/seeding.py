@@ -169,21 +169,18 @@ def study_selections(profile, settings, directory=None) -> tuple[str, ...]:
     return SELECTION_CHOICES + check_round_selections(profile, settings, directory)
 
 
-def check_round_layer(profile, settings, seeds, on_level=None, directory=None) -> DeepFront:
+def check_round_layer(profile, settings, seeds, general, on_level=None) -> DeepFront:
     """A second deep pass that may also use general check rounds (``--check-rounds``).
 
     The same levels, width and layers as :func:`deep_layer`, seeded with the
     same known recipes and the first pass's linear front; its front joins the
     search's front beside the first pass's, so offering the new rounds never
     loses a point the first pass found (its pruning differs: it has more
-    candidates per level). None when the search asks for no check rounds or
-    no deep layer.
+    candidates per level). ``general``: the rounds offered (the study's, as
+    :func:`study_selections` gives them, less the built-in kinds). None when
+    there are none or no deep layer.
     """
-    levels = deep_levels(settings)
-    if settings.check_rounds is None or levels == 0:
-        return None
-    general = check_round_selections(profile, settings, directory)
-    if not general:
+    if not general or deep_levels(settings) == 0:
         return None
     return deep_layer(profile, settings, seeds, on_level=on_level, general=general)
 

@@ -254,7 +254,7 @@ class SearchSettings:
             )
         if self.check_rounds is not None:
             spec = self.check_rounds
-            canonical = ",".join(f"{n}:{g}" for n, g in parse_check_rounds(spec))
+            canonical = ",".join(f"{n}:{g}" for n, g in sorted(parse_check_rounds(spec)))
             object.__setattr__(self, "check_rounds", canonical)
         _check_int(
             "check_rounds_top",
@@ -263,6 +263,11 @@ class SearchSettings:
             CHECK_ROUNDS_TOP_LIMIT,
             "the rounds taken from each catalogue of check rounds",
         )
+        if self.check_rounds is None and self.check_rounds_top != CHECK_ROUNDS_TOP:
+            raise InputError(
+                f"check_rounds_top = {self.check_rounds_top!r} needs check_rounds (the "
+                "catalogues it takes rounds from)"
+            )
         t = self.timeout_s
         if t is not None and (
             isinstance(t, bool) or not isinstance(t, Real) or math.isnan(t) or not t > 0
@@ -324,9 +329,15 @@ class SearchSettings:
         return sampler_settings(self.sampler, self.seed)
 
     def study_identity(self, profile_dict: dict) -> dict:
-        """What identifies the optuna study: the ``study`` fields and the profile."""
+        """What identifies the optuna study: the ``study`` fields, the check rounds when asked
+        for (choices of its space) and the profile."""
         data = self.to_json()
         identity = {k: data[k] for k in self.fields_of("study")}
+        if self.check_rounds is not None:
+            # the check rounds are choices of the study's space: a study shared by
+            # runs that offer other rounds would hold trials it cannot read back
+            identity["check_rounds"] = self.check_rounds
+            identity["check_rounds_top"] = self.check_rounds_top
         identity["profile"] = profile_dict
         return identity
 

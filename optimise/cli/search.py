@@ -153,8 +153,7 @@ def add_parser(sub, parents) -> None:
             "deep pass, with the same settings, also tries the rounds of the catalogues named "
             "here on every made pair, with raw pairs or copies as sacrificed pairs and one "
             "rotation for every input (or the kept pair). Catalogues are built once per profile "
-            "and cached. The study "
-            "samples the built-in rounds only. A resumed run must repeat these values."
+            "and cached. The study samples them too. A resumed run must repeat these values."
         ),
     )
     checks.add_argument(

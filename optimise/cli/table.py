@@ -157,9 +157,9 @@ def print_tables(out, front, *, top: int, targets) -> None:
             [(str(i), row) for i, row in enumerate(rows, 1)],
         )
     )
-    from ..rows import CHECK_ROUNDS_HEADING, check_round_notes
+    from ..rows import CHECK_ROUNDS_HEADING, check_round_notes, shown_notations
 
-    checks = check_round_notes(n for row in rows for n in (row.result.notation, *row.also))
+    checks = check_round_notes(shown_notations(rows, target_table))
     if checks:
         out.print()
         out.print(CHECK_ROUNDS_HEADING)

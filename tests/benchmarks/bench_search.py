@@ -368,17 +368,17 @@ def targets(names, long_factor, layers_only, coverage_depth, coverage_width, ski
 def _single_round_rivals(profile, general, front):
     """The general rounds on raw pairs set against ``front`` at their own fidelity.
 
-    For every round of :func:`optimise.deep.general_rounds` that sacrifices raw
+    For every round of :func:`optimise.deep.general_round_variants` that sacrifices raw
     pairs, as a one-round recipe: its raw pairs per output against those of the
     cheapest recipe of ``front`` reaching its fidelity. Returns the round that
     does best, as (ratio, notation, fidelity, its raw pairs, front's cheapest), or
     None; and the highest fidelity one general round reaches on raw pairs.
     """
     from models.recipes import Recipe
-    from optimise.deep import general_rounds
+    from optimise.deep import general_round_variants
 
     best, top = None, 0.0
-    for r in general_rounds(general):
+    for r in general_round_variants(general):
         if r.sacrificed != "raw" or r.twirl:
             continue
         mine = evaluate(Recipe((r,)), profile)

@@ -29,7 +29,7 @@ from models.chain import advance_rounds, start_chains
 from models.evaluate import evaluate
 from models.recipes import Recipe, Round
 from optimise.cli import main
-from optimise.deep import deep_front, general_rounds
+from optimise.deep import deep_front, general_round_variants
 from optimise.errors import InputError, RunError
 from optimise.profiles import demo_profile
 from optimise.search import run_search
@@ -122,11 +122,11 @@ def test_the_deep_layer_uses_general_rounds_and_its_front_evaluates_the_same(nam
 )
 def test_general_rounds_refuse_what_is_not_one(general, message):
     with pytest.raises(ValueError, match=message):
-        general_rounds(general)
+        general_round_variants(general)
 
 
 def test_general_rounds_list_every_rotation_choice_once():
-    rounds = general_rounds(["c{01,21/ZX/00}", "01,21/ZX/00"])  # one round, named twice
+    rounds = general_round_variants(["c{01,21/ZX/00}", "01,21/ZX/00"])  # one round, named twice
     # raw pairs: six rotations of every input and five of the kept pair alone; copies: six
     assert len(rounds) == (11 + 6) * 2
     assert len(set(rounds)) == len(rounds)
@@ -152,8 +152,8 @@ def test_bad_catalogue_lists_are_one_line_naming_the_field(spec, message):
 
 def test_catalogue_lists_are_run_settings_read_back_and_defaulted():
     settings = SearchSettings(check_rounds=" 4:4, 3:3,4:4", check_rounds_top=5)
-    assert settings.check_rounds == "4:4,3:3"
-    assert parse_check_rounds(settings.check_rounds) == ((4, 4), (3, 3))
+    assert settings.check_rounds == "3:3,4:4"  # one spelling per set of catalogues
+    assert parse_check_rounds(settings.check_rounds) == ((3, 3), (4, 4))
     data = json.loads(json.dumps(settings.to_json()))
     assert SearchSettings.from_json(data) == settings
     assert {"check_rounds", "check_rounds_top"} <= set(SearchSettings.fields_of("run"))
@@ -162,6 +162,11 @@ def test_catalogue_lists_are_run_settings_read_back_and_defaulted():
     assert SearchSettings.from_json(data).check_rounds is None
     with pytest.raises(InputError, match=r"check_rounds_top = 0 is outside \[1, 512\]"):
         SearchSettings(check_rounds_top=0)
+    with pytest.raises(InputError, match="check_rounds_top = 5 needs check_rounds"):
+        SearchSettings(check_rounds_top=5)
+    # choices of the study's space: part of its identity when asked for, absent otherwise
+    assert settings.study_identity({})["check_rounds"] == "3:3,4:4"
+    assert "check_rounds" not in SearchSettings().study_identity({})
 
 
 def test_the_rounds_offered_are_spread_along_the_catalogue_s_front(tmp_path):
@@ -267,3 +272,54 @@ def test_the_study_samples_and_explores_the_rounds_it_is_offered():
     around = neighbours(known[1], 3, selections)
     assert around and around[0]["r2.selection"] == FORMS[1]
     assert neighbours(known[1], 3) == []  # outside a space without it
+
+
+def test_a_resume_and_a_shared_study_read_the_rounds_fixed_when_the_study_began(
+    tmp_path, monkeypatch
+):
+    import optimise.seeding as seeding
+
+    monkeypatch.setenv("XDG_CACHE_HOME", "/proc/no-such-cache")  # cannot be written: built anyway
+    profile = PROFILES["perfect-rotations"]
+    shared = tmp_path / "shared.journal"
+    small = dict(max_depth=2, exhaustive_depth=1, deep_levels=2, progress=False)
+    first = run_search(
+        profile,
+        run_dir=tmp_path / "a",
+        storage=str(shared),
+        n_trials=20,
+        check_rounds="3:2",
+        **small,
+    )
+    assert first.n_trials_total == 20
+
+    def no_catalogue(*args, **kwargs):
+        raise AssertionError("the catalogue was read again")
+
+    monkeypatch.setattr(seeding, "check_round_selections", no_catalogue)
+    again = run_search(
+        profile,
+        run_dir=tmp_path / "a",
+        storage=str(shared),
+        n_trials=30,
+        check_rounds="3:2",
+        **small,
+    )
+    assert again.n_trials_this_run == 10
+    # another run folder of the same name on the same storage shares the study: it
+    # must offer the same rounds
+    other = tmp_path / "elsewhere" / "a"
+    with pytest.raises(RunError, match="other settings"):
+        run_search(profile, run_dir=other, storage=str(shared), n_trials=30, **small)
+
+
+def test_every_recipe_a_table_shows_is_looked_at_for_general_rounds():
+    from types import SimpleNamespace as Row
+
+    from optimise.rows import check_round_notes, shown_notations
+
+    rows = [Row(result=Row(notation="sY"), also=("c{01,21/ZX/00}Y",))]
+    targets = [Row(recipe=Row(notation="sY.cs{01,20,32,21/ZXX/000}Z")), Row(recipe=None)]
+    notes = check_round_notes(shown_notations(rows, targets))
+    assert [form for form, _ in notes] == ["01,21/ZX/00", "01,20,32,21/ZXX/000"]
+    assert notes[1][1].startswith("at each node CNOT 0>1, CNOT 2>0, CNOT 3>2, CNOT 2>1")
