@@ -87,6 +87,7 @@ DEFAULT_LAYERS = 2
 DEFAULT_WIDTH = 8
 BATCH = 16384  # rows per advance call, as in the exhaustive layer
 RAW, SAME = -1, -2  # source levels of rounds that sacrifice raw pairs or copies
+SHARES_PER_WORKER = 8  # runs of units per worker and level (tests/benchmarks/bench_deep.py)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -397,7 +398,9 @@ def _propose(library, d, profile, codes, options, gather, n_jobs):
     base, _, _ = base_codes(codes)
     units = _work(library, d, profile, base, options)
     jobs = effective_n_jobs(n_jobs)
-    shares = _shares(units, 1 if jobs == 1 else 2 * jobs)
+    # units differ in cost (double selection, sourced rounds): runs of about a
+    # sixteenth of a level per worker pair keep both workers busy to the end
+    shares = _shares(units, 1 if jobs == 1 else SHARES_PER_WORKER * jobs)
     tasks = []
     for share in shares:
         used = {u[0] for u in share} | {u[1] for u in share if u[1] is not None}
