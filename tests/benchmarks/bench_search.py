@@ -259,6 +259,14 @@ def cheapest(results, target):
     return best.notation, best.raw_pairs_per_output
 
 
+def _cell(x, width):
+    """A (notation, raw pairs) cell right-aligned in ``width`` columns; '-' for None."""
+    if x is None:
+        return f"{'-':>{width}}"
+    text = x[0] if len(x[0]) <= width - 10 else x[0][: width - 13] + "..."
+    return f"{text + f' {x[1]:.4g}':>{width}}"
+
+
 def best_baselines(profile, max_depth=12):
     from models.baselines import BASELINES, baseline
 
@@ -346,13 +354,7 @@ def targets(names, long_factor, layers_only, coverage_depth, coverage_width, ski
             if c is not None:
                 checks.append("within 2%" if b is not None and b[1] <= c[1] * 1.02 else "over 2%!")
 
-            def cell(x, width):
-                if x is None:
-                    return f"{'-':>{width}}"
-                text = x[0] if len(x[0]) <= width - 10 else x[0][: width - 13] + "..."
-                return f"{text + f' {x[1]:.4g}':>{width}}"
-
-            print(f"{t:>6}  {cell(a, 34)}  {cell(b, 44)}  {cell(c, 44)}  {' '.join(checks)}")
+            print(f"{t:>6}  {_cell(a, 34)}  {_cell(b, 44)}  {_cell(c, 44)}  {' '.join(checks)}")
         top = [max(r.fidelity for r in x) if x else float("nan") for x in (base, default, long)]
         print(f"highest fidelity: (a) {top[0]:.6f}  (b) {top[1]:.6f}  (c) {top[2]:.6f}")
         if coverage_depth:
@@ -441,13 +443,7 @@ def check_rounds(names, spec, layers_only) -> None:
             a, b = cheapest(today, t), cheapest(today + new, t)
             saving = "" if a is None or b is None else f"{100 * (1 - b[1] / a[1]):5.1f} %"
 
-            def cell(x, width):
-                if x is None:
-                    return f"{'-':>{width}}"
-                text = x[0] if len(x[0]) <= width - 10 else x[0][: width - 13] + "..."
-                return f"{text + f' {x[1]:.4g}':>{width}}"
-
-            print(f"{t:>6}  {cell(a, 44)}  {cell(b, 52)}  {saving:>7}")
+            print(f"{t:>6}  {_cell(a, 44)}  {_cell(b, 52)}  {saving:>7}")
         best, top = _single_round_rivals(profile, general, today)
         if best is not None:
             ratio, notation, fidelity, cost, rival = best
