@@ -47,6 +47,7 @@ def add_parser(sub, parents) -> None:
         "  stillroom search mine.toml --target 0.99       cheapest recipe reaching F >= 0.99\n"
         "  stillroom search mine.toml --time 2h --trials 100000   overnight\n"
         "  stillroom search mine.toml --objectives fidelity,yield,memory --max-memory 3\n"
+        "  stillroom search mine.toml --check-rounds 3:3,4:4   also 3- and 4-pair check rounds\n"
         "  stillroom search mine.toml --storage postgresql://host/db --workers 2\n"
         "      (run the same command on several machines to share one study)\n"
         "  stillroom search mine.toml --dask-scheduler tcp://HOST:8786\n"
