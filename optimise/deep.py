@@ -332,36 +332,32 @@ def _evaluate_units(units, batches, profile, codes, options):
     for kept_level, source_level, kept_row, source_row, code in units:
         kept = batches[kept_level]
         if source_level is None and code[0] >= N_CODES:
+            # general rounds: every one wanted, untwirled and twirled (its code + 1)
             out, success = advance_rounds(
                 kept, general, code - N_CODES, profile, parent=kept_row, level=0
             )
             same = np.array([general[c - N_CODES].sacrificed == "same" for c in code])
-            out, new_codes, rows = add_twirled(
-                out, code, np.ones(code.size, bool), np.ones(code.size, bool), p1, partner=code + 1
-            )
-            ok = _filter(out, success[rows], options)
-            out = out.take(ok)
-            src = np.where(same, SAME, RAW)[rows][ok]
-            origin = _origin(len(out), kept_level, kept_row[rows][ok], src, 0, new_codes[ok])
-            gather.add(out, state_keys(out.bell, out.weighted[:, :1], options["symmetry"]), origin)
-            gather.evaluations += len(code)
-            continue
-        if source_level is None:
-            out, success = advance(kept, code, profile, parent=kept_row, level=0)
-            source_level = np.where(CODE_SAME[code], SAME, RAW)
+            source_level = np.where(same, SAME, RAW)
             source_row = np.zeros_like(kept_row)
+            wanted = np.ones(code.size, bool)
+            out, new_codes, rows = add_twirled(out, code, wanted, wanted, p1, partner=code + 1)
         else:
-            out, success = advance_sourced(
-                kept,
-                batches[source_level],
-                code,
-                profile,
-                kept_index=kept_row,
-                source_index=source_row,
-                level=0,
-            )
-        pos = position[code]
-        out, new_codes, rows = add_twirled(out, code, want_base[pos], want_twirl[pos], p1)
+            if source_level is None:
+                out, success = advance(kept, code, profile, parent=kept_row, level=0)
+                source_level = np.where(CODE_SAME[code], SAME, RAW)
+                source_row = np.zeros_like(kept_row)
+            else:
+                out, success = advance_sourced(
+                    kept,
+                    batches[source_level],
+                    code,
+                    profile,
+                    kept_index=kept_row,
+                    source_index=source_row,
+                    level=0,
+                )
+            pos = position[code]
+            out, new_codes, rows = add_twirled(out, code, want_base[pos], want_twirl[pos], p1)
         ok = _filter(out, success[rows], options)
         out = out.take(ok)
         src = source_level if np.ndim(source_level) == 0 else source_level[rows][ok]
@@ -398,8 +394,8 @@ def _propose(library, d, profile, codes, options, gather, n_jobs):
     base, _, _ = base_codes(codes)
     units = _work(library, d, profile, base, options)
     jobs = effective_n_jobs(n_jobs)
-    # units differ in cost (double selection, sourced rounds): runs of about a
-    # sixteenth of a level per worker pair keep both workers busy to the end
+    # units differ in cost (double selection, sourced rounds): many short runs
+    # per worker keep every worker busy to the end of the level
     shares = _shares(units, 1 if jobs == 1 else SHARES_PER_WORKER * jobs)
     tasks = []
     for share in shares:
