@@ -46,7 +46,9 @@ Run from anywhere (pytest ignores this folder)::
    saving ("today" also holds the recipes without general rounds that the
    second search found: a saving counts only what the new rounds bring). Then
    the one general round on raw pairs that does best against today's cheapest
-   recipe of the same fidelity, to show what a round brings on its own.
+   recipe of the same fidelity, and per target the cheapest single general
+   round on raw pairs that reaches it (column "one general round"), to show
+   what a round brings on its own.
 
 Speed is never asserted in a test.
 """
@@ -374,16 +376,18 @@ def _single_round_rivals(profile, general, front):
     pairs, as a one-round recipe: its raw pairs per output against those of the
     cheapest recipe of ``front`` reaching its fidelity. Returns the round that
     does best, as (ratio, notation, fidelity, its raw pairs, front's cheapest), or
-    None; and the highest fidelity one general round reaches on raw pairs.
+    None; the highest fidelity one general round reaches on raw pairs; and every
+    such one-round result (for the cheapest single round reaching each target).
     """
     from models.recipes import Recipe
     from optimise.deep import general_round_variants
 
-    best, top = None, 0.0
+    best, top, singles = None, 0.0, []
     for r in general_round_variants(general):
         if r.sacrificed != "raw" or r.twirl:
             continue
         mine = evaluate(Recipe((r,)), profile)
+        singles.append(mine)
         top = max(top, mine.fidelity)
         rival = cheapest(front, mine.fidelity)
         if rival is None:
@@ -391,7 +395,7 @@ def _single_round_rivals(profile, general, front):
         ratio = mine.raw_pairs_per_output / rival[1]
         if best is None or ratio < best[0]:
             best = (ratio, mine.notation, mine.fidelity, mine.raw_pairs_per_output, rival)
-    return best, top
+    return best, top, singles
 
 
 def check_rounds(names, spec, layers_only) -> None:
@@ -438,13 +442,16 @@ def check_rounds(names, spec, layers_only) -> None:
             f"search without check rounds {default_s:.1f} s, with {new_s:.1f} s "
             f"({len(general)} general rounds offered; load average up to {load:.2f} on 2 cores)"
         )
-        print(f"{'F*':>6}  {'today':>44}  {'with check rounds':>52}  saving")
+        best, top, singles = _single_round_rivals(profile, general, today)
+        print(
+            f"{'F*':>6}  {'today':>44}  {'with check rounds':>52}  saving  "
+            f"{'one general round on raw pairs':>44}"
+        )
         for t in TARGETS:
             a, b = cheapest(today, t), cheapest(today + new, t)
             saving = "" if a is None or b is None else f"{100 * (1 - b[1] / a[1]):5.1f} %"
-
-            print(f"{t:>6}  {_cell(a, 44)}  {_cell(b, 52)}  {saving:>7}")
-        best, top = _single_round_rivals(profile, general, today)
+            one = cheapest(singles, t)
+            print(f"{t:>6}  {_cell(a, 44)}  {_cell(b, 52)}  {saving:>7}  {_cell(one, 44)}")
         if best is not None:
             ratio, notation, fidelity, cost, rival = best
             print(
