@@ -2,9 +2,9 @@
 
 External references:
 - ``models.evaluate.evaluate``, the single-recipe evaluator, which is checked
-  against an independent full density-matrix simulation (qutip) for general
-  rounds of three and four pairs with every noise on in
-  ``tests/models/test_against_density_matrix.py``; here the batched evaluation
+  against an independent full density-matrix simulation (qutip) for random
+  general rounds of three and four pairs with every noise on in
+  ``tests/models/test_circuits.py``; here the batched evaluation
   of general rounds on made pairs (``models.chain.advance_rounds``) and the deep
   layer's front must agree with it;
 - the 2->1 check (Bennett et al., Phys. Rev. Lett. 76, 722 (1996)) written as a
