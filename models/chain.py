@@ -574,10 +574,11 @@ def advance_rounds(
     bound = profile.bound()
     lattice, k = _lattice(chains, bound, level, span=int(n_inputs.max()) - 1)
     branch = np.empty((n, k, 4))
-    for i, r in enumerate(rounds):
-        group = np.flatnonzero(which == i)
-        if not group.size:
-            continue
+    # rows grouped by round once: a deep level offers thousands of rounds
+    by_round = np.argsort(which, kind="stable")
+    used, starts = np.unique(which[by_round], return_index=True)
+    for i, lo, hi in zip(used, starts, np.append(starts[1:], n), strict=True):
+        group, r = by_round[lo:hi], rounds[i]
         kind = STEP_KINDS[r.selection]
         states, inverse = np.unique(parent[group], return_inverse=True)
         made = _made(chains.take(states), r.sacrificed == "same", kind.n_inputs, bound, lattice)

@@ -80,7 +80,7 @@ from .levels import (
 from .limits import as_limits
 from .objectives import check_objectives
 from .objectives import objective_values as figures_of
-from .pareto import pareto_mask, quantise
+from .pareto import evenly_spread, pareto_mask, quantise
 
 DEFAULT_DEPTH = 10
 DEFAULT_LAYERS = 2
@@ -179,7 +179,7 @@ def pareto_layers(values, maximise, layers: int, width: int) -> np.ndarray:
         if front.size > room:
             sign = 1.0 if maximise[0] else -1.0
             front = front[np.lexsort((front, -sign * q[front, 0]))]
-            front = front[np.unique(np.linspace(0, front.size - 1, room).round().astype(int))]
+            front = front[evenly_spread(front.size, room)]
         chosen.append(front)
         room -= front.size
         remaining = remaining[~mask]
@@ -336,8 +336,7 @@ def _evaluate_units(units, batches, profile, codes, options):
             out, success = advance_rounds(
                 kept, general, code - N_CODES, profile, parent=kept_row, level=0
             )
-            same = np.array([general[c - N_CODES].sacrificed == "same" for c in code])
-            source_level = np.where(same, SAME, RAW)
+            source_level = np.where(options["general_same"][code - N_CODES], SAME, RAW)
             source_row = np.zeros_like(kept_row)
             wanted = np.ones(code.size, bool)
             out, new_codes, rows = add_twirled(out, code, wanted, wanted, p1, partner=code + 1)
@@ -603,6 +602,7 @@ def deep_front(
     caps = [c for c in (max_chain, limits.max_depth) if c is not None]
     max_chain = min(caps) if caps else depth
     extra = general_round_variants(general)
+    offered = tuple(dict.fromkeys(r.selection for r in extra))
     widest = max([WIDEST] + [r.n_inputs for r in extra])
     code_set = space_codes(include_double, codes)
     closed = closed_under_rotations(code_set)
@@ -617,6 +617,7 @@ def deep_front(
         "width": width,
         "trees": bool(trees),
         "general": extra,
+        "general_same": np.array([r.sacrificed == "same" for r in extra], dtype=bool),
     }
     grows = profile.bound().lattice(0).grows
     raw = start_chains(profile, 1, rounds_ahead=depth, widest=widest)
@@ -642,9 +643,9 @@ def deep_front(
         depth=depth,
         layers=layers,
         width=width,
-        space=describe_deep_space(depth, layers, width, len({r.selection for r in extra})),
+        space=describe_deep_space(depth, layers, width, len(offered)),
         seconds=time.monotonic() - started,
-        general=tuple(dict.fromkeys(r.selection for r in extra)),
+        general=offered,
     )
 
 

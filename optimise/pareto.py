@@ -190,3 +190,17 @@ def quantise(values, rtol: float = 1e-12) -> np.ndarray:
     scale = np.where(finite & (v != 0), np.abs(v), 1.0)
     quantum = np.exp2(np.floor(np.log2(scale))) * rtol
     return np.where(finite, np.round(np.where(finite, v, 0.0) / quantum) * quantum, v)
+
+
+def evenly_spread(count: int, room: int) -> np.ndarray:
+    """Indices of ``room`` items spread evenly over ``count`` in order, both ends kept
+    (all of them when they fit); sorted, without repeats.
+
+    Examples
+    --------
+    >>> evenly_spread(10, 4).tolist(), evenly_spread(3, 5).tolist()
+    ([0, 3, 6, 9], [0, 1, 2])
+    """
+    if count <= room:
+        return np.arange(count)
+    return np.unique(np.linspace(0, count - 1, room).round().astype(int))

@@ -236,17 +236,19 @@ def _search(profile, run: Run, settings, recorded, study, spec, started, bar, st
             known = [r.notation for r in exhaustive.results]
             known += [b.result.notation for b in baselines]
             deep = deep_layer(profile, settings, known, on_level=on_level)
-            on_level = _layer_note(
-                bar,
-                "check rounds",
-                "deep layer with check rounds: level {}, {:,d} pairs kept of {:,d} rounds "
-                "evaluated in {:.1f} s",
-            )
-            linear = [r.notation for r in deep.results if parse_recipe(r.notation).is_linear]
+            checked = None
             general = selections[len(SELECTION_CHOICES) :]
-            checked = check_round_layer(
-                profile, settings, known + linear, general, on_level=on_level
-            )
+            if general:
+                on_level = _layer_note(
+                    bar,
+                    "check rounds",
+                    "deep layer with check rounds: level {}, {:,d} pairs kept of {:,d} rounds "
+                    "evaluated in {:.1f} s",
+                )
+                linear = [r.notation for r in deep.results if parse_recipe(r.notation).is_linear]
+                checked = check_round_layer(
+                    profile, settings, known + linear, general, on_level=on_level
+                )
         finally:
             release_layer_workers()
     me = worker_identity()

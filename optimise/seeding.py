@@ -14,6 +14,7 @@ from models.notation import parse_recipe
 
 from .deep import DeepFront, deep_front
 from .exhaustive import ExhaustiveFront, exhaustive_front
+from .pareto import evenly_spread
 from .settings import DEEP_LEVELS_LIMIT, parse_check_rounds
 from .space import SELECTION_CHOICES, recipe_params
 
@@ -153,11 +154,8 @@ def check_round_selections(profile, settings, directory=None) -> tuple[str, ...]
             directory=directory,
         )
         useful = [e["form"] for e in catalogue.entries if e["fidelity"] > profile.raw[0]]
-        top = settings.check_rounds_top
-        if len(useful) > top:
-            picks = sorted({round(i * (len(useful) - 1) / max(top - 1, 1)) for i in range(top)})
-            useful = [useful[i] for i in picks]
-        chosen += [f for f in useful if f not in chosen]
+        picks = evenly_spread(len(useful), settings.check_rounds_top)
+        chosen += [useful[i] for i in picks if useful[i] not in chosen]
     return tuple(chosen)
 
 

@@ -283,28 +283,15 @@ def test_a_resume_and_a_shared_study_read_the_rounds_fixed_when_the_study_began(
     profile = PROFILES["perfect-rotations"]
     shared = tmp_path / "shared.journal"
     small = dict(max_depth=2, exhaustive_depth=1, deep_levels=2, progress=False)
-    first = run_search(
-        profile,
-        run_dir=tmp_path / "a",
-        storage=str(shared),
-        n_trials=20,
-        check_rounds="3:2",
-        **small,
-    )
+    with_rounds = dict(run_dir=tmp_path / "a", storage=str(shared), check_rounds="3:2", **small)
+    first = run_search(profile, n_trials=20, **with_rounds)
     assert first.n_trials_total == 20
 
     def no_catalogue(*args, **kwargs):
         raise AssertionError("the catalogue was read again")
 
     monkeypatch.setattr(seeding, "check_round_selections", no_catalogue)
-    again = run_search(
-        profile,
-        run_dir=tmp_path / "a",
-        storage=str(shared),
-        n_trials=30,
-        check_rounds="3:2",
-        **small,
-    )
+    again = run_search(profile, n_trials=30, **with_rounds)
     assert again.n_trials_this_run == 10
     # another run folder of the same name on the same storage shares the study: it
     # must offer the same rounds
