@@ -265,8 +265,8 @@ class SearchSettings:
         )
         if self.check_rounds is None and self.check_rounds_top != CHECK_ROUNDS_TOP:
             raise InputError(
-                f"check_rounds_top = {self.check_rounds_top!r} needs check_rounds (the "
-                "catalogues it takes rounds from)"
+                f"check_rounds_top = {self.check_rounds_top!r} needs check_rounds = "
+                "PAIRS:CNOTS[,PAIRS:CNOTS...], the catalogues it takes rounds from"
             )
         t = self.timeout_s
         if t is not None and (
